@@ -1,0 +1,1 @@
+//! `analysis`: see DESIGN.md module map (filled by its issue).

@@ -1,0 +1,1 @@
+//! `chart`: see DESIGN.md module map (filled by its issue).

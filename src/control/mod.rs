@@ -1,0 +1,1 @@
+//! `control`: see DESIGN.md module map (filled by its issue).

@@ -1,0 +1,1 @@
+//! `curriculum`: see DESIGN.md module map (filled by its issue).

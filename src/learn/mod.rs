@@ -1,0 +1,1 @@
+//! `learn`: see DESIGN.md module map (filled by its issue).

@@ -1,0 +1,15 @@
+//! termwise: a CPU lab that measures which reward terms and reset curricula make PPO learn a
+//! planar-arm reaching task fastest and move best. The binary in `main.rs` only parses the command
+//! line; every capability lives in these modules (see DEVELOPERS.md for the code map).
+
+pub mod analysis;
+pub mod chart;
+pub mod control;
+pub mod curriculum;
+pub mod fsio;
+pub mod learn;
+pub mod plan;
+pub mod replay;
+pub mod reward;
+pub mod sim;
+pub mod study;

@@ -1,0 +1,1 @@
+//! `plan`: see DESIGN.md module map (filled by its issue).

@@ -1,0 +1,1 @@
+//! `replay`: see DESIGN.md module map (filled by its issue).

@@ -1,0 +1,1 @@
+//! `reward`: see DESIGN.md module map (filled by its issue).

@@ -1,0 +1,1 @@
+//! `sim`: planar N-link arm simulator.

@@ -1,0 +1,1 @@
+//! `study`: see DESIGN.md module map (filled by its issue).
