@@ -157,11 +157,15 @@ impl ArmEnv {
         &self.action_limits
     }
 
-    /// Limit the episode to the first `count` scenario obstacles and scale the random goal-jump rate
-    /// (used by difficulty curricula). Takes effect at the next reset.
+    /// Use only the first `count` scenario obstacles and this random goal-jump rate (per second) from the next
+    /// reset on (difficulty curricula). Also puts the obstacles back at their t = 0 positions, so starts and
+    /// goals sampled next are checked against the layout the episode will begin with.
     pub fn set_difficulty(&mut self, count: usize, jump_rate: f64) {
         self.active_obstacles = count.min(self.sc.obstacles.len());
         self.jump_rate = jump_rate.max(0.0);
+        for (i, o) in self.sc.obstacles.iter().enumerate() {
+            self.shapes[i] = o.shape;
+        }
     }
 
     /// Start an episode from `start` with goal `goal`; `event_seed` seeds goal jumps.

@@ -1,0 +1,178 @@
+//! One run of a study (a variant and a seed): build the task environments, train with PPO, evaluate the
+//! deterministic policy on the study's fixed episodes every `eval_every` steps, and keep the run's folder
+//! (run.json, progress.csv, terms.csv, checkpoints) current on disk after every evaluation.
+
+use super::experiment::{fnv1a_hex, Experiment, VariantKind, VariantSpec};
+use super::layout::{self, RunRecord, RunStatus};
+use super::task::{eval_draw, run_episode, Episode, EvalSummary, RunShared, TaskEnv};
+use super::StudyError;
+use crate::learn::{Environment, LearnError, NoObserver, Policy, Trainer};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex};
+use std::time::Instant;
+
+/// One planned run.
+#[derive(Clone, Debug)]
+pub struct RunSpec {
+    /// Position in the plan (the `--cell` index).
+    pub index: usize,
+    pub variant: usize,
+    pub seed: u64,
+    pub dir: PathBuf,
+    pub config_hash: String,
+}
+
+/// The plan: every (variant, seed), variant-major.
+pub fn plan_runs(exp: &Experiment, out: &Path) -> Vec<RunSpec> {
+    let mut runs = Vec::new();
+    for (vi, v) in exp.variants.iter().enumerate() {
+        let seeds = if v.kind == VariantKind::Baseline { 1 } else { exp.seeds() };
+        for seed in 0..seeds {
+            runs.push(RunSpec {
+                index: runs.len(),
+                variant: vi,
+                seed,
+                dir: out.join(&v.name).join(format!("seed-{seed}")),
+                config_hash: config_hash(exp, v, seed),
+            });
+        }
+    }
+    runs
+}
+
+/// Identifies everything that determines a run's results.
+pub fn config_hash(exp: &Experiment, v: &VariantSpec, seed: u64) -> String {
+    let st = &exp.study;
+    let settings = format!(
+        "{}|{}|{}|{}|{}|{}",
+        st.budget,
+        exp.eval_every(),
+        st.eval_episodes,
+        st.eval_seed,
+        seed,
+        env!("CARGO_PKG_VERSION")
+    );
+    fnv1a_hex(&[st.name.as_bytes(), v.name.as_bytes(), v.merged.as_bytes(), settings.as_bytes()])
+}
+
+/// The run's random seed, derived from (study name, variant name, seed).
+pub fn run_seed(exp: &Experiment, v: &VariantSpec, seed: u64) -> u64 {
+    let h = fnv1a_hex(&[exp.study.name.as_bytes(), v.name.as_bytes(), &seed.to_le_bytes()]);
+    u64::from_str_radix(&h, 16).expect("16 hex digits")
+}
+
+/// Progress of a run, for the display.
+#[derive(Clone, Debug)]
+pub struct RunProgress {
+    pub env_steps: u64,
+    pub success_rate: f64,
+    pub level: f64,
+}
+
+/// Evaluate a deterministic policy on the study's fixed evaluation episodes.
+pub fn evaluate_policy(exp: &Experiment, v: &VariantSpec, policy: &Policy) -> EvalSummary {
+    let mut ep = Episode::new(v.scenario.clone(), &v.reward, &v.plan, v.learner.gamma, v.observation.waypoints);
+    let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
+    let mut act = |_: &Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
+    for j in 0..exp.study.eval_episodes as u64 {
+        let (d, mut rng) = eval_draw(&mut ep, exp.study.eval_seed, j);
+        eps.push(run_episode(&mut ep, &d, &mut rng, &mut act));
+    }
+    EvalSummary::from_episodes(&eps)
+}
+
+/// Build the training environments of a run.
+pub fn build_envs(v: &VariantSpec, rseed: u64, shared: &Arc<Mutex<RunShared>>) -> Vec<Box<dyn Environment>> {
+    (0..v.learner.num_envs)
+        .map(|i| {
+            let ep = Episode::new(v.scenario.clone(), &v.reward, &v.plan, v.learner.gamma, v.observation.waypoints);
+            Box::new(TaskEnv::new(ep, rseed ^ (i as u64 + 1).wrapping_mul(0x9E37_79B9_7F4A_7C15), shared.clone())) as Box<dyn Environment>
+        })
+        .collect()
+}
+
+/// Execute one run to completion (or interruption / divergence), writing its folder as it goes.
+pub fn execute(exp: &Experiment, spec: &RunSpec, stop: &AtomicBool, on_progress: &mut dyn FnMut(&RunProgress)) -> Result<RunStatus, StudyError> {
+    let v = &exp.variants[spec.variant];
+    let t0 = Instant::now();
+    let mut record = RunRecord::new(exp, v, spec);
+    layout::clear_run(&spec.dir)?;
+    layout::write_run_json(&spec.dir, &record)?;
+    let term_names = v.reward.term_names();
+    let mut rows: Vec<(u64, EvalSummary, f64)> = Vec::new();
+    let save_rows = |rows: &[(u64, EvalSummary, f64)]| -> Result<(), StudyError> {
+        layout::write_progress(&spec.dir, rows)?;
+        layout::write_terms(&spec.dir, &term_names, rows)
+    };
+    if v.kind == VariantKind::Baseline {
+        let summary = crate::control::evaluate_baseline(exp, v).map_err(|e| StudyError::Run(format!("{}: {e}", spec.dir.display())))?;
+        rows.push((0, summary, 1.0));
+        save_rows(&rows)?;
+        record.finish(RunStatus::Done, 0, t0.elapsed().as_secs_f64(), None);
+        layout::write_run_json(&spec.dir, &record)?;
+        return Ok(RunStatus::Done);
+    }
+    let mut cfg = v.learner.clone();
+    if cfg.lr_decay_steps == 0 {
+        cfg.lr_decay_steps = exp.study.budget as u64;
+    }
+    let rseed = run_seed(exp, v, spec.seed);
+    let shared = Arc::new(Mutex::new(RunShared { curriculum: v.curriculum.build(), env_steps: 0, episodes: 0, successes: 0 }));
+    let envs = build_envs(v, rseed, &shared);
+    let mut trainer = Trainer::new(cfg, envs, rseed).map_err(|e| StudyError::Run(format!("{}: {e}", spec.dir.display())))?;
+    let ckpt = spec.dir.join("policy.safetensors");
+    let best = spec.dir.join("policy-best.safetensors");
+    let budget = exp.study.budget as u64;
+    let every = exp.eval_every();
+    let mut best_success = -1.0;
+    let level = |sh: &Arc<Mutex<RunShared>>| sh.lock().expect("run state").curriculum.level();
+    let mut evaluate = |trainer: &Trainer, rows: &mut Vec<(u64, EvalSummary, f64)>, best_success: &mut f64| -> Result<(), StudyError> {
+        let s = evaluate_policy(exp, v, trainer.policy());
+        let lv = level(&shared);
+        on_progress(&RunProgress { env_steps: trainer.env_steps(), success_rate: s.success_rate, level: lv });
+        let improved = s.success_rate > *best_success;
+        rows.push((trainer.env_steps(), s, lv));
+        save_rows(rows)?;
+        trainer.save_checkpoint(&ckpt).map_err(|e| StudyError::Run(e.to_string()))?;
+        if improved {
+            *best_success = rows.last().expect("just pushed").1.success_rate;
+            trainer.save_checkpoint(&best).map_err(|e| StudyError::Run(e.to_string()))?;
+        }
+        Ok(())
+    };
+    evaluate(&trainer, &mut rows, &mut best_success)?;
+    let mut next_eval = every;
+    let mut status = RunStatus::Done;
+    let mut message = None;
+    while trainer.env_steps() < budget {
+        if stop.load(Ordering::SeqCst) {
+            status = RunStatus::Interrupted;
+            break;
+        }
+        match trainer.iterate(&mut NoObserver) {
+            Ok(_) => {}
+            Err(e @ LearnError::Diverged { .. }) => {
+                status = RunStatus::Diverged;
+                message = Some(e.to_string());
+                break;
+            }
+            Err(e) => return Err(StudyError::Run(format!("{}: {e}", spec.dir.display()))),
+        }
+        if trainer.env_steps() >= next_eval || trainer.env_steps() >= budget {
+            evaluate(&trainer, &mut rows, &mut best_success)?;
+            while next_eval <= trainer.env_steps() {
+                next_eval += every;
+            }
+        }
+        record.heartbeat(trainer.env_steps(), t0.elapsed().as_secs_f64());
+        layout::write_run_json(&spec.dir, &record)?;
+    }
+    if status == RunStatus::Interrupted && rows.last().map(|r| r.0) != Some(trainer.env_steps()) {
+        // Record where the run stopped (the trainer's weights are the last good ones).
+        evaluate(&trainer, &mut rows, &mut best_success)?;
+    }
+    record.finish(status, trainer.env_steps(), t0.elapsed().as_secs_f64(), message);
+    layout::write_run_json(&spec.dir, &record)?;
+    Ok(status)
+}

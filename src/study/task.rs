@@ -1,0 +1,343 @@
+//! The reaching task a run trains on: the simulator, a reference path from the planner, the reward composer and
+//! (in training) a reset curriculum, wrapped as a `learn::Environment`; plus the episode metrics that
+//! evaluation and replay record (success, time to goal, smoothness, clearance, path deviation, replans).
+
+use crate::curriculum::{Curriculum, EpisodeDraw};
+use crate::learn::{Environment, Transition};
+use crate::plan::{plan_path, PlanSpec, ReferencePath};
+use crate::reward::{Composer, RewardSpec};
+use crate::sim::{ArmEnv, ArmState, Scenario, StepReport, MAX_JOINTS};
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use std::sync::{Arc, Mutex};
+
+/// Metrics of one finished episode.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct EpisodeMetrics {
+    pub success: bool,
+    pub collided: bool,
+    /// Time at which the goal was reached, s (None when it was not).
+    pub time_to_goal: Option<f64>,
+    /// Undiscounted sum of rewards.
+    pub ret: f64,
+    /// Per-term sums, in the composer's order.
+    pub terms: Vec<f64>,
+    pub steps: usize,
+    /// RMS joint acceleration over steps and joints, rad/s^2.
+    pub rms_acc: f64,
+    /// Largest |joint acceleration|, rad/s^2.
+    pub peak_acc: f64,
+    /// RMS joint jerk (finite difference of the per-step accelerations), rad/s^3.
+    pub rms_jerk: f64,
+    /// Effector path length, m.
+    pub path_length: f64,
+    /// Smallest signed clearance seen, m.
+    pub min_clearance: f64,
+    /// Mean effector distance from the reference path, m.
+    pub path_deviation: f64,
+    /// Replans after scenario events.
+    pub replans: usize,
+    /// Plans that fell back to the straight line.
+    pub fallbacks: usize,
+}
+
+/// Running sums for `EpisodeMetrics` (no allocation per step).
+#[derive(Clone, Debug, Default)]
+struct Accum {
+    sum_sq_acc: f64,
+    peak_acc: f64,
+    sum_sq_jerk: f64,
+    jerk_samples: usize,
+    prev_ddq: Option<[f64; MAX_JOINTS]>,
+    path_length: f64,
+    min_clearance: f64,
+    sum_dev: f64,
+    steps: usize,
+    ret: f64,
+    replans: usize,
+    fallbacks: usize,
+    collided: bool,
+    time_to_goal: Option<f64>,
+}
+
+/// One episode of the task: simulator + reference path + reward composer + metrics.
+pub struct Episode {
+    pub sim: ArmEnv,
+    pub composer: Composer,
+    plan: PlanSpec,
+    pub path: ReferencePath,
+    prev: StepReport,
+    acc: Accum,
+    path_obs: bool,
+    plan_rng: ChaCha8Rng,
+}
+
+impl Episode {
+    pub fn new(scenario: Arc<Scenario>, reward: &RewardSpec, plan: &PlanSpec, gamma: f64, path_obs: bool) -> Episode {
+        let sim = ArmEnv::new(scenario);
+        let prev = sim.last_report();
+        let composer = Composer::new(reward, gamma);
+        let n = sim.n();
+        let q = sim.state().q;
+        Episode {
+            path: ReferencePath {
+                joints: vec![q; plan.waypoints.max(2)],
+                points: vec![prev.ee; plan.waypoints.max(2)],
+                fallback: false,
+            },
+            sim,
+            composer,
+            plan: plan.clone(),
+            prev,
+            acc: Accum::default(),
+            path_obs,
+            plan_rng: ChaCha8Rng::seed_from_u64(n as u64),
+        }
+    }
+
+    /// Observation length: the simulator's plus 2 per waypoint when the policy is path-conditioned.
+    pub fn obs_dim(&self) -> usize {
+        self.sim.obs_dim() + if self.path_obs { 2 * self.plan.waypoints } else { 0 }
+    }
+
+    pub fn act_dim(&self) -> usize {
+        self.sim.n()
+    }
+
+    /// Start an episode from a draw: plan the reference path (from the nominal start), optionally move the
+    /// start onto a random waypoint, reset the simulator, the composer and the metrics.
+    pub fn begin(&mut self, d: &EpisodeDraw, rng: &mut ChaCha8Rng) {
+        self.sim.set_difficulty(d.obstacles, d.jump_rate);
+        self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
+        let path = plan_path(&self.sim, &d.start.q[..self.sim.n()], d.goal, &self.plan, &mut self.plan_rng);
+        let mut start = d.start;
+        if d.start_on_path && path.joints.len() > 1 {
+            let k = rng.gen_range(0..path.joints.len() - 1);
+            let cand = ArmState::at_rest(&path.joints[k][..self.sim.n()]);
+            if self.sim.config_free(&cand.q) {
+                start = cand;
+            }
+        }
+        let first = self.sim.reset(start, d.goal, rng.gen());
+        self.acc = Accum {
+            min_clearance: first.min_clearance,
+            fallbacks: path.fallback as usize,
+            ..Accum::default()
+        };
+        self.path = path;
+        self.composer.reset(&first, Some(&self.path));
+        self.prev = first;
+    }
+
+    /// Apply a normalised action in [-1, 1]^n; returns the report, the reward and whether the episode is terminal.
+    pub fn step(&mut self, action: &[f32]) -> (StepReport, f64, bool) {
+        let n = self.sim.n();
+        let mut u = [0.0; MAX_JOINTS];
+        for i in 0..n {
+            u[i] = action[i].clamp(-1.0, 1.0) as f64 * self.sim.action_limits()[i];
+        }
+        let now = self.sim.step(&u[..n]);
+        if now.goal_jumped || now.obstacle_moved {
+            let path = plan_path(&self.sim, &now.q[..n], now.goal, &self.plan, &mut self.plan_rng);
+            self.acc.replans += 1;
+            self.acc.fallbacks += path.fallback as usize;
+            self.path = path;
+            self.sim.mark_planned();
+            self.composer.set_path(&self.path);
+        }
+        let r = self.composer.step(&self.prev, &now);
+        let terminal = self.composer.ends_episode(&now);
+        // Metrics.
+        let a = &mut self.acc;
+        let dt = self.sim.scenario().control_dt();
+        for i in 0..n {
+            a.sum_sq_acc += now.ddq[i] * now.ddq[i];
+            a.peak_acc = a.peak_acc.max(now.ddq[i].abs());
+        }
+        if let Some(p) = a.prev_ddq {
+            for i in 0..n {
+                let j = (now.ddq[i] - p[i]) / dt;
+                a.sum_sq_jerk += j * j;
+            }
+            a.jerk_samples += 1;
+        }
+        a.prev_ddq = Some(now.ddq);
+        a.path_length += crate::sim::geometry::dist(now.ee, now.ee_prev);
+        a.min_clearance = a.min_clearance.min(now.min_clearance);
+        a.sum_dev += self.path.polyline().project(now.ee).distance;
+        a.steps += 1;
+        a.ret += r;
+        a.collided |= now.collided;
+        if now.reached_goal && a.time_to_goal.is_none() {
+            a.time_to_goal = Some(now.t);
+        }
+        self.prev = now;
+        (now, r, terminal)
+    }
+
+    /// Metrics of the episode so far.
+    pub fn metrics(&self) -> EpisodeMetrics {
+        let a = &self.acc;
+        let n = self.sim.n() as f64;
+        let steps = a.steps.max(1) as f64;
+        EpisodeMetrics {
+            success: a.time_to_goal.is_some(),
+            collided: a.collided,
+            time_to_goal: a.time_to_goal,
+            ret: a.ret,
+            terms: self.composer.episode_sums().to_vec(),
+            steps: a.steps,
+            rms_acc: (a.sum_sq_acc / (steps * n)).sqrt(),
+            peak_acc: a.peak_acc,
+            rms_jerk: if a.jerk_samples > 0 { (a.sum_sq_jerk / (a.jerk_samples as f64 * n)).sqrt() } else { 0.0 },
+            path_length: a.path_length,
+            min_clearance: a.min_clearance,
+            path_deviation: a.sum_dev / steps,
+            replans: a.replans,
+            fallbacks: a.fallbacks,
+        }
+    }
+
+    /// Write the observation: the simulator's, then the next K waypoints relative to the effector (scaled by reach).
+    pub fn observe(&self, out: &mut [f32]) {
+        let d = self.sim.obs_dim();
+        self.sim.observe(&mut out[..d]);
+        if !self.path_obs {
+            return;
+        }
+        let ee = self.prev.ee;
+        let reach = self.sim.scenario().arm.reach();
+        let pts = &self.path.points;
+        let seg = self.path.polyline().project(ee).segment;
+        for k in 0..self.plan.waypoints {
+            let p = pts[(seg + 1 + k).min(pts.len() - 1)];
+            out[d + 2 * k] = ((p[0] - ee[0]) / reach) as f32;
+            out[d + 2 * k + 1] = ((p[1] - ee[1]) / reach) as f32;
+        }
+    }
+}
+
+/// What the environments of one run share: the curriculum, the step counter and training-episode tallies.
+pub struct RunShared {
+    pub curriculum: Box<dyn Curriculum>,
+    pub env_steps: u64,
+    pub episodes: u64,
+    pub successes: u64,
+}
+
+/// A training environment: an `Episode` whose starts come from the run's curriculum.
+pub struct TaskEnv {
+    ep: Episode,
+    rng: ChaCha8Rng,
+    shared: Arc<Mutex<RunShared>>,
+}
+
+impl TaskEnv {
+    pub fn new(ep: Episode, seed: u64, shared: Arc<Mutex<RunShared>>) -> TaskEnv {
+        TaskEnv { ep, rng: ChaCha8Rng::seed_from_u64(seed), shared }
+    }
+}
+
+impl Environment for TaskEnv {
+    fn obs_dim(&self) -> usize {
+        self.ep.obs_dim()
+    }
+    fn act_dim(&self) -> usize {
+        self.ep.act_dim()
+    }
+    fn reset(&mut self, obs: &mut [f32]) {
+        let draw = {
+            let mut sh = self.shared.lock().expect("run state lock");
+            let steps = sh.env_steps;
+            let n_obs = self.ep.sim.scenario().obstacles.len();
+            let rate = self.ep.sim.scenario().events.goal_jump_rate;
+            self.ep.sim.set_difficulty(n_obs, rate);
+            sh.curriculum.draw(&self.ep.sim, steps, &mut self.rng)
+        };
+        self.ep.begin(&draw, &mut self.rng);
+        self.ep.observe(obs);
+    }
+    fn step(&mut self, action: &[f32], obs: &mut [f32]) -> Transition {
+        let (now, r, terminal) = self.ep.step(action);
+        self.ep.observe(obs);
+        let truncated = !terminal && now.timed_out;
+        let mut sh = self.shared.lock().expect("run state lock");
+        sh.env_steps += 1;
+        if terminal || truncated {
+            sh.episodes += 1;
+            sh.successes += now.reached_goal as u64;
+            let steps = sh.env_steps;
+            sh.curriculum.feedback(now.reached_goal, steps);
+        }
+        Transition { reward: r as f32, terminated: terminal, truncated }
+    }
+}
+
+/// The fixed evaluation episode `j` of a study: uniform start and goal from a seed shared by every variant and
+/// seed, the scenario's full obstacle set and events.
+pub fn eval_draw(ep: &mut Episode, eval_seed: u64, j: u64) -> (EpisodeDraw, ChaCha8Rng) {
+    let mut rng = ChaCha8Rng::seed_from_u64(eval_seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ j);
+    let sc = ep.sim.scenario().clone();
+    ep.sim.set_difficulty(sc.obstacles.len(), sc.events.goal_jump_rate);
+    let d = crate::curriculum::full_task_draw(&ep.sim, &mut rng);
+    (d, rng)
+}
+
+/// Run one evaluation episode with a deterministic controller `act(obs, action_out)`.
+pub fn run_episode(ep: &mut Episode, draw: &EpisodeDraw, rng: &mut ChaCha8Rng, act: &mut dyn FnMut(&Episode, &[f32], &mut [f32])) -> EpisodeMetrics {
+    ep.begin(draw, rng);
+    let mut obs = vec![0f32; ep.obs_dim()];
+    let mut action = vec![0f32; ep.act_dim()];
+    loop {
+        ep.observe(&mut obs);
+        act(ep, &obs, &mut action);
+        let (now, _, terminal) = ep.step(&action);
+        if terminal || now.timed_out {
+            return ep.metrics();
+        }
+    }
+}
+
+/// Means over a set of evaluation episodes (the columns of progress.csv and terms.csv).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct EvalSummary {
+    pub success_rate: f64,
+    pub mean_return: f64,
+    /// Mean over successful episodes, s (NaN when none succeeded).
+    pub time_to_goal: f64,
+    pub collision_rate: f64,
+    pub rms_joint_acc: f64,
+    pub peak_joint_acc: f64,
+    pub rms_jerk: f64,
+    pub path_length: f64,
+    pub min_clearance: f64,
+    pub path_deviation: f64,
+    pub replans: f64,
+    pub planner_fallbacks: f64,
+    pub terms: Vec<f64>,
+}
+
+impl EvalSummary {
+    /// Average episode metrics.
+    pub fn from_episodes(eps: &[EpisodeMetrics]) -> EvalSummary {
+        let n = eps.len().max(1) as f64;
+        let mean = |f: &dyn Fn(&EpisodeMetrics) -> f64| eps.iter().map(f).sum::<f64>() / n;
+        let succ: Vec<f64> = eps.iter().filter_map(|e| e.time_to_goal).collect();
+        let n_terms = eps.first().map(|e| e.terms.len()).unwrap_or(0);
+        EvalSummary {
+            success_rate: mean(&|e| e.success as u8 as f64),
+            mean_return: mean(&|e| e.ret),
+            time_to_goal: if succ.is_empty() { f64::NAN } else { succ.iter().sum::<f64>() / succ.len() as f64 },
+            collision_rate: mean(&|e| e.collided as u8 as f64),
+            rms_joint_acc: mean(&|e| e.rms_acc),
+            peak_joint_acc: mean(&|e| e.peak_acc),
+            rms_jerk: mean(&|e| e.rms_jerk),
+            path_length: mean(&|e| e.path_length),
+            min_clearance: eps.iter().map(|e| e.min_clearance).fold(f64::INFINITY, f64::min),
+            path_deviation: mean(&|e| e.path_deviation),
+            replans: mean(&|e| e.replans as f64),
+            planner_fallbacks: mean(&|e| e.fallbacks as f64),
+            terms: (0..n_terms).map(|k| mean(&|e| e.terms[k])).collect(),
+        }
+    }
+}
