@@ -36,6 +36,38 @@ enum Command {
         #[arg(long)]
         out: PathBuf,
     },
+    /// Run a study: every (variant, seed) of an experiment file, in parallel, resuming finished runs.
+    Run {
+        /// Experiment TOML file.
+        experiment: PathBuf,
+        /// Worker threads (each run is single-threaded). Default: the number of cores.
+        #[arg(long)]
+        jobs: Option<usize>,
+        /// Results folder. Default: results/<study name>.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Run only the K-th run of the plan (0-based, as `check` lists them), e.g. from a job array.
+        #[arg(long)]
+        cell: Option<usize>,
+        /// Skip drawing the report at the end.
+        #[arg(long)]
+        no_report: bool,
+    },
+    /// Validate an experiment file and print its plan with a wall-time estimate, without running it.
+    Check {
+        /// Experiment TOML file.
+        experiment: PathBuf,
+        /// Worker threads assumed for the estimate. Default: the number of cores.
+        #[arg(long)]
+        jobs: Option<usize>,
+        /// Skip the calibration (no estimate of wall time).
+        #[arg(long)]
+        no_calibrate: bool,
+    },
+}
+
+fn cores() -> usize {
+    std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1)
 }
 
 fn init_logging(verbose: u8) {
@@ -74,5 +106,44 @@ fn main() -> ExitCode {
             }
             Err(e) => fail(&e, e.is_bad_input()),
         },
+        Command::Run {
+            experiment,
+            jobs,
+            out,
+            cell,
+            no_report,
+        } => {
+            termwise::learn::pin_kernel_threads();
+            let stop = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
+            let flag = stop.clone();
+            let _ = ctrlc::set_handler(move || {
+                eprintln!("termwise: stopping after the current iteration (runs are marked interrupted)...");
+                flag.store(true, std::sync::atomic::Ordering::SeqCst);
+            });
+            match termwise::study::cli_run(&experiment, jobs.unwrap_or_else(cores), out, cell, !no_report, &stop) {
+                Ok(text) => {
+                    println!("{text}");
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(&e, e.is_bad_input()),
+            }
+        }
+        Command::Check {
+            experiment,
+            jobs,
+            no_calibrate,
+        } => {
+            termwise::learn::pin_kernel_threads();
+            match termwise::study::experiment::load(&experiment)
+                .map_err(termwise::study::StudyError::from)
+                .and_then(|exp| termwise::study::check_text(&exp, jobs.unwrap_or_else(cores), !no_calibrate))
+            {
+                Ok(text) => {
+                    print!("{text}");
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(&e, e.is_bad_input()),
+            }
+        }
     }
 }

@@ -239,3 +239,27 @@ fn calibration(exp: &Experiment) -> Result<(f64, f64), StudyError> {
     let eval_s = t.elapsed().as_secs_f64() / 4.0 * exp.study.eval_episodes as f64;
     Ok((sps, eval_s))
 }
+
+/// The whole `termwise run` command: load, run (or one cell), then draw the report and return the terminal summary.
+pub fn cli_run(path: &Path, jobs: usize, out: Option<PathBuf>, cell: Option<usize>, report: bool, stop: &AtomicBool) -> Result<String, StudyError> {
+    let exp = experiment::load(path)?;
+    let out = out.unwrap_or_else(|| Path::new("results").join(&exp.study.name));
+    let o = run_study(&exp, &out, jobs, cell, stop)?;
+    let mut text = format!(
+        "termwise: {} runs ran ({} done, {} diverged, {} interrupted), {} already finished; results in {}",
+        o.ran,
+        o.done,
+        o.diverged,
+        o.interrupted,
+        o.skipped,
+        out.display()
+    );
+    if report && cell.is_none() {
+        let files = crate::chart::write_report(&out, &crate::chart::ReportOptions::default())
+            .map_err(|e| StudyError::Run(format!("drawing the report: {e}")))?;
+        text.push('\n');
+        text.push_str(&crate::chart::terminal_summary(&files.summary));
+        text.push_str(&format!("\nreport: {}", out.join("report.html").display()));
+    }
+    Ok(text)
+}
