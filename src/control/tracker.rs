@@ -142,7 +142,8 @@ impl Tracker {
     /// mode, clipped to its limits; written to `out[..n]`.
     ///
     /// The PD terms use the reference at t; the feed-forward acceleration is taken at the middle of the control
-    /// step (t + dt/2), since the action is held constant over the step.
+    /// step (t + dt/2), since the action is held constant over the step. In torque mode the computed torque
+    /// M v + h is evaluated at the state predicted for mid-step (see `computed_torque` for the continuous law).
     pub fn action(&mut self, arm: &Arm, q: &[f64], dq: &[f64], t: f64, out: &mut [f64]) {
         let n = self.n;
         let reference = match &self.trajectory {
@@ -161,11 +162,22 @@ impl Tracker {
                 r
             }
         };
+        let v = feedback_acceleration(n, &self.kp, &self.kd, q, dq, &reference);
         let u = match self.mode {
-            ControlMode::Acceleration => {
-                feedback_acceleration(n, &self.kp, &self.kd, q, dq, &reference)
+            ControlMode::Acceleration => v,
+            ControlMode::Torque => {
+                // The torque is held for the whole step while the state moves; evaluating the inverse dynamics
+                // at the state predicted for mid-step (constant acceleration v) makes the held torque produce
+                // v on average to second order in dt, instead of first.
+                let h = 0.5 * self.control_dt;
+                let mut qm = [0.0; MAX_JOINTS];
+                let mut dqm = [0.0; MAX_JOINTS];
+                for i in 0..n {
+                    qm[i] = q[i] + h * dq[i] + 0.5 * h * h * v[i];
+                    dqm[i] = dq[i] + h * v[i];
+                }
+                arm.inverse_dynamics(&qm, &dqm, &v)
             }
-            ControlMode::Torque => computed_torque(arm, &self.kp, &self.kd, q, dq, &reference),
         };
         for i in 0..n {
             out[i] = u[i].clamp(-self.limits[i], self.limits[i]);
