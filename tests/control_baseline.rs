@@ -129,9 +129,9 @@ fn episode(
     out
 }
 
-/// Closed-form inverse kinematics of the planar two-link arm (law of cosines; Spong, Hutchinson & Vidyasagar,
-/// "Robot Modeling and Control", 2006, sec. 5.1 / 3.x two-link example): of the two elbow solutions, the one
-/// nearer to `near`.
+/// Closed-form inverse kinematics of the planar two-link arm by the law of cosines (hand-worked; the standard
+/// two-link solution, cited from memory), choosing the elbow solution nearer to `near`; checked below by forward
+/// kinematics.
 fn two_link_ik(sc: &Scenario, p: [f64; 2], near: &JointVec) -> JointVec {
     let (l1, l2) = (sc.arm.links[0].length, sc.arm.links[1].length);
     let c2 = ((p[0] * p[0] + p[1] * p[1] - l1 * l1 - l2 * l2) / (2.0 * l1 * l2)).clamp(-1.0, 1.0);
