@@ -102,7 +102,12 @@ fn loading_counts_every_run_status_and_keeps_missing_runs() {
     );
     assert_eq!(s.status.total(), 45);
     assert_eq!(
-        (s.status.diverged, s.status.interrupted, s.status.running, s.status.missing),
+        (
+            s.status.diverged,
+            s.status.interrupted,
+            s.status.running,
+            s.status.missing
+        ),
         (1, 1, 1, 1)
     );
     assert_eq!(s.status.done, 41);
@@ -118,7 +123,11 @@ fn loading_counts_every_run_status_and_keeps_missing_runs() {
     for v in &s.variants {
         for a in [&v.final_success, &v.auc, &v.rms_joint_acc] {
             if a.iqm.lo.is_finite() {
-                assert!(a.iqm.lo <= a.iqm.point && a.iqm.point <= a.iqm.hi, "{}", v.info.name);
+                assert!(
+                    a.iqm.lo <= a.iqm.point && a.iqm.point <= a.iqm.hi,
+                    "{}",
+                    v.info.name
+                );
             }
         }
     }
@@ -175,9 +184,22 @@ fn report_writes_every_chart_and_each_names_every_variant() {
             "grid_sensitivity"
         ]
     );
-    let all: Vec<&str> = files.summary.variants.iter().map(|v| v.info.name.as_str()).collect();
-    let learned: Vec<&str> = all.iter().copied().filter(|n| *n != "pd-tracking").collect();
-    let grid: Vec<&str> = all.iter().copied().filter(|n| n.starts_with("grid-")).collect();
+    let all: Vec<&str> = files
+        .summary
+        .variants
+        .iter()
+        .map(|v| v.info.name.as_str())
+        .collect();
+    let learned: Vec<&str> = all
+        .iter()
+        .copied()
+        .filter(|n| *n != "pd-tracking")
+        .collect();
+    let grid: Vec<&str> = all
+        .iter()
+        .copied()
+        .filter(|n| n.starts_with("grid-"))
+        .collect();
     for c in &files.charts {
         for p in [&c.svg, &c.png] {
             let len = std::fs::metadata(p).unwrap().len();
@@ -218,13 +240,20 @@ fn report_writes_every_chart_and_each_names_every_variant() {
     assert_eq!(row("pd-tracking").kind, "baseline");
     for r in &rows {
         assert_eq!(r.runs_planned, 5);
-        assert_eq!(r.done + r.diverged + r.interrupted + r.running + r.missing, 5);
+        assert_eq!(
+            r.done + r.diverged + r.interrupted + r.running + r.missing,
+            5
+        );
         let (p, lo, hi) = (
             r.final_success_iqm.unwrap(),
             r.final_success_iqm_lo.unwrap(),
             r.final_success_iqm_hi.unwrap(),
         );
-        assert!(lo <= p && p <= hi && (0.0..=1.0).contains(&p), "{}", r.variant);
+        assert!(
+            lo <= p && p <= hi && (0.0..=1.0).contains(&p),
+            "{}",
+            r.variant
+        );
         assert!(r.time_to_goal_s_iqm.is_some() && r.rms_joint_acc_rad_s2_iqm_lo.is_some());
         assert!(r.path_length_m_iqm.is_some() && r.peak_joint_acc_rad_s2_iqm.is_some());
         assert!(r.rms_jerk_rad_s3_iqm.is_some() && r.min_clearance_m_iqm.is_some());
@@ -252,10 +281,21 @@ fn report_command_redraws_from_files_and_maps_errors_to_exit_codes() {
     std::fs::remove_dir_all(dir.join("all-terms/seed-4")).unwrap();
     std::fs::remove_dir_all(dir.join("heavy-shaping/seed-0")).unwrap();
     let out = std::process::Command::new(bin)
-        .args(["report", dir.to_str().unwrap(), "--resamples", "200", "--seed", "3"])
+        .args([
+            "report",
+            dir.to_str().unwrap(),
+            "--resamples",
+            "200",
+            "--seed",
+            "3",
+        ])
         .output()
         .unwrap();
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let stdout = String::from_utf8(out.stdout).unwrap();
     assert!(stdout.contains("3 missing"), "{stdout}");
     assert!(stdout.contains("reverse-curriculum"));

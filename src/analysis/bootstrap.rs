@@ -147,7 +147,12 @@ mod tests {
         let mut covered = 0;
         for t in 0..trials {
             let sample: Vec<f64> = (0..n).map(|_| mu + sigma * normal(&mut data_rng)).collect();
-            let e = bootstrap_ci(&sample, mean, BootstrapSpec::default(), stream_seed(7, &[t]));
+            let e = bootstrap_ci(
+                &sample,
+                mean,
+                BootstrapSpec::default(),
+                stream_seed(7, &[t]),
+            );
             assert!(e.lo <= e.point && e.point <= e.hi);
             if e.lo <= mu && mu <= e.hi {
                 covered += 1;

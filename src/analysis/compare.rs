@@ -238,7 +238,11 @@ mod tests {
         // n = m = 10 -> 23. U <= critical is significant, critical + 1 is not.
         for (n, crit) in [(5usize, 2usize), (6, 5), (8, 13), (10, 23)] {
             assert!(exact_p_two_sided(crit, n, n) <= 0.05, "n={n} U={crit}");
-            assert!(exact_p_two_sided(crit + 1, n, n) > 0.05, "n={n} U={}", crit + 1);
+            assert!(
+                exact_p_two_sided(crit + 1, n, n) > 0.05,
+                "n={n} U={}",
+                crit + 1
+            );
         }
         // Gaussian binomial [4 choose 2]_q = 1 + q + 2q^2 + q^3 + q^4 (the U counts for n = m = 2;
         // Andrews, "The Theory of Partitions", 1976, Thm 3.1).
@@ -255,7 +259,9 @@ mod tests {
         // statrs' Normal::cdf and erfc carry up to ~1e-10 relative error (at z = -3.3 its CDF
         // gives 4.834241424235e-4 where the C library's erfc gives 4.834241423837776e-4), so statrs
         // is compared at 1e-9 ...
-        for &z in &[-6.0, -3.3, -2.0, -0.7, 0.0, 0.4, 1.0, 1.959964, 2.5, 3.0, 4.2, 7.5] {
+        for &z in &[
+            -6.0, -3.3, -2.0, -0.7, 0.0, 0.4, 1.0, 1.959964, 2.5, 3.0, 4.2, 7.5,
+        ] {
             assert_relative_eq!(normal_cdf(z), std_normal.cdf(z), max_relative = 1e-9);
             assert_relative_eq!(erfc(z), statrs::function::erf::erfc(z), max_relative = 1e-9);
         }
@@ -286,7 +292,11 @@ mod tests {
         // ties among all 15 values: 2 (x3), 3 (x2), 5 (x3), 8 (x2) -> sum t^3-t = 24+6+24+6 = 60
         let var: f64 = 56.0 / 12.0 * (16.0 - 60.0 / (15.0 * 14.0));
         let z = ((14.5f64 - 28.0).abs() - 0.5) / var.sqrt();
-        assert_relative_eq!(r.p_value, 2.0 * (1.0 - std_normal.cdf(z)), max_relative = 1e-10);
+        assert_relative_eq!(
+            r.p_value,
+            2.0 * (1.0 - std_normal.cdf(z)),
+            max_relative = 1e-10
+        );
     }
 
     #[test]

@@ -337,7 +337,11 @@ pub fn read_progress(path: &Path) -> Result<Vec<EvalRow>, AnalysisError> {
         .iter()
         .map(str::to_string)
         .collect();
-    if header.iter().map(String::as_str).ne(PROGRESS_HEADER.iter().copied()) {
+    if header
+        .iter()
+        .map(String::as_str)
+        .ne(PROGRESS_HEADER.iter().copied())
+    {
         return Err(AnalysisError::BadHeader {
             path: path.to_path_buf(),
             expected: PROGRESS_HEADER.join(","),
@@ -369,10 +373,12 @@ pub fn read_terms(path: &Path) -> Result<TermTable, AnalysisError> {
     for record in reader.records() {
         let record = record.map_err(|e| csv_error(path, e))?;
         let parse = |s: &str| -> Result<f64, AnalysisError> {
-            s.trim().parse::<f64>().map_err(|_| AnalysisError::BadNumber {
-                path: path.to_path_buf(),
-                text: s.to_string(),
-            })
+            s.trim()
+                .parse::<f64>()
+                .map_err(|_| AnalysisError::BadNumber {
+                    path: path.to_path_buf(),
+                    text: s.to_string(),
+                })
         };
         let steps = parse(record.get(0).unwrap_or(""))?;
         let values = record

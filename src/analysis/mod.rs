@@ -91,7 +91,9 @@ pub enum AnalysisError {
         text: String,
     },
     /// run.json has a status outside done | diverged | interrupted | running.
-    #[error("{path}: unknown run status '{status}' (expected done, diverged, interrupted or running)")]
+    #[error(
+        "{path}: unknown run status '{status}' (expected done, diverged, interrupted or running)"
+    )]
     BadStatus {
         /// File.
         path: PathBuf,

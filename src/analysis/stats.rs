@@ -122,7 +122,10 @@ mod tests {
         ];
         for (data, certified_mean, std_digits) in cases {
             assert_eq!(data.len(), 1001);
-            assert!(lre(mean(&data), certified_mean) >= 15.0, "mean {certified_mean}");
+            assert!(
+                lre(mean(&data), certified_mean) >= 15.0,
+                "mean {certified_mean}"
+            );
             let s = sample_std(&data);
             assert!(
                 lre(s, 0.1) >= std_digits,

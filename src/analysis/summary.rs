@@ -448,7 +448,12 @@ fn curve(
         steps.push(step);
         points.push(PointStat {
             n: xs.len(),
-            mean: stratified_bootstrap(&[&xs], |s| mean(&s[0]), opts.spec(), labels(TAG_CURVE_MEAN)),
+            mean: stratified_bootstrap(
+                &[&xs],
+                |s| mean(&s[0]),
+                opts.spec(),
+                labels(TAG_CURVE_MEAN),
+            ),
             iqm: stratified_bootstrap(&[&xs], |s| iqm(&s[0]), opts.spec(), labels(TAG_CURVE_IQM)),
         });
     }
@@ -471,7 +476,11 @@ fn aggregate(
     }
 }
 
-fn threshold_aggregate(index: usize, runs: &[RunMetrics], opts: &AnalysisOptions) -> ThresholdAggregate {
+fn threshold_aggregate(
+    index: usize,
+    runs: &[RunMetrics],
+    opts: &AnalysisOptions,
+) -> ThresholdAggregate {
     let mut reached = 0;
     let mut censored = 0;
     let mut pending = 0;
@@ -584,7 +593,7 @@ fn gaming_check(
     let fin = finite(r.iter().copied());
     let range = fin.iter().copied().fold(f64::NEG_INFINITY, f64::max)
         - fin.iter().copied().fold(f64::INFINITY, f64::min);
-    if !(range > 0.0) {
+    if range.is_nan() || range <= 0.0 {
         return None;
     }
     let drop = s[peak] - s_end;

@@ -237,7 +237,7 @@ fn draw_panel<DB: DrawingBackend>(
         .map_err(draw_err(name))?;
     chart
         .configure_mesh()
-        .light_line_style(RULE.mix(0.5))
+        .light_line_style(TRANSPARENT)
         .bold_line_style(RULE)
         .axis_style(MUTED)
         .x_desc("environment steps")
@@ -262,7 +262,12 @@ fn draw_panel<DB: DrawingBackend>(
             .draw_series(std::iter::once(Text::new(
                 format!("threshold {t}"),
                 (x_max * 0.01, t),
-                anchored(12, MUTED, plotters::style::text_anchor::HPos::Left, plotters::style::text_anchor::VPos::Bottom),
+                anchored(
+                    12,
+                    MUTED,
+                    plotters::style::text_anchor::HPos::Left,
+                    plotters::style::text_anchor::VPos::Bottom,
+                ),
             )))
             .map_err(draw_err(name))?;
     }
@@ -275,7 +280,10 @@ fn draw_panel<DB: DrawingBackend>(
             }
             let faint = lighten(variant_colour(i), 0.6).stroke_width(1);
             for c in &v.seed_curves {
-                let pts = c.rows.iter().map(|r| (r.env_steps as f64, panel.metric.of(r)));
+                let pts = c
+                    .rows
+                    .iter()
+                    .map(|r| (r.env_steps as f64, panel.metric.of(r)));
                 for seg in segments(pts) {
                     chart
                         .draw_series(LineSeries::new(seg, faint))
@@ -358,7 +366,13 @@ fn draw_centre<DB: DrawingBackend>(
     if v.info.kind == VariantKind::Baseline {
         if let Some(p) = c.points.first().filter(|p| p.iqm.point.is_finite()) {
             let y = p.iqm.point;
-            styled_line(chart, &[(0.0, y), (x_max, y)], colour.stroke_width(2), Some((6, 6)), name)?;
+            styled_line(
+                chart,
+                &[(0.0, y), (x_max, y)],
+                colour.stroke_width(2),
+                Some((6, 6)),
+                name,
+            )?;
         }
         return Ok(());
     }
@@ -368,7 +382,13 @@ fn draw_centre<DB: DrawingBackend>(
         .zip(&c.points)
         .map(|(&x, p)| (x as f64, p.iqm.point));
     for seg in segments(pts) {
-        styled_line(chart, &seg, colour.stroke_width(3), variant_dash(v.index), name)?;
+        styled_line(
+            chart,
+            &seg,
+            colour.stroke_width(3),
+            variant_dash(v.index),
+            name,
+        )?;
         let every = seg.len().div_ceil(12).max(1);
         let marks: Vec<(f64, f64)> = seg.iter().copied().step_by(every).collect();
         markers(chart, &marks, variant_marker(v.index), colour, 4, name)?;

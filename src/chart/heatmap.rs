@@ -85,7 +85,11 @@ pub struct GridHeatmap<'a> {
 
 /// Lightness ramp from pale sand (t = 0, worse) to deep blue (t = 1, better).
 fn ramp(t: f64) -> RGBColor {
-    let stops = [(247.0, 241.0, 222.0), (122.0, 166.0, 180.0), (22.0, 44.0, 92.0)];
+    let stops = [
+        (247.0, 241.0, 222.0),
+        (122.0, 166.0, 180.0),
+        (22.0, 44.0, 92.0),
+    ];
     let t = t.clamp(0.0, 1.0) * 2.0;
     let k = (t.floor() as usize).min(1);
     let f = t - k as f64;
@@ -106,7 +110,11 @@ const METRICS: [Metric; 2] = [
         title: "IQM steps to threshold (fewer = darker = better)",
         value: |v| v.steps_to_threshold.iqm.point,
         label: |v| {
-            let lb = if v.steps_to_threshold.lower_bound { "≥" } else { "" };
+            let lb = if v.steps_to_threshold.lower_bound {
+                "≥"
+            } else {
+                ""
+            };
             format!("{lb}{}", fmt_steps(v.steps_to_threshold.iqm.point))
         },
         lower_is_better: true,
@@ -134,7 +142,10 @@ impl Chart for GridHeatmap<'_> {
         let head = draw_title(
             root,
             "Where in the weight grid does learning break down?",
-            &format!("Each cell is one variant: x = {}, y = {}. Cell text: value, variant name.", l.x_key, l.y_key),
+            &format!(
+                "Each cell is one variant: x = {}, y = {}. Cell text: value, variant name.",
+                l.x_key, l.y_key
+            ),
             name,
         )?;
         let (_, rest) = root.split_vertically(head);
@@ -148,7 +159,9 @@ impl Chart for GridHeatmap<'_> {
                 .collect();
             let (lo, hi) = values
                 .iter()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+                    (a.min(v), b.max(v))
+                });
             let (nx, ny) = (l.xs.len() as f64, l.ys.len() as f64);
             let mut chart = ChartBuilder::on(area)
                 .caption(metric.title, text(16, INK))
@@ -184,11 +197,23 @@ impl Chart for GridHeatmap<'_> {
                         fill.filled(),
                     )))
                     .map_err(draw_err(name))?;
-                let ink = if t.is_some_and(|t| t > 0.55) { WHITE } else { INK };
+                let ink = if t.is_some_and(|t| t > 0.55) {
+                    WHITE
+                } else {
+                    INK
+                };
                 let (cx, cy) = chart.backend_coord(&(x + 0.5, y + 0.5));
-                let label = if val.is_finite() { (metric.label)(v) } else { "no data".into() };
-                root.draw(&Text::new(label, (cx, cy - 9), anchored(18, ink, HPos::Center, VPos::Center)))
-                    .map_err(draw_err(name))?;
+                let label = if val.is_finite() {
+                    (metric.label)(v)
+                } else {
+                    "no data".into()
+                };
+                root.draw(&Text::new(
+                    label,
+                    (cx, cy - 9),
+                    anchored(18, ink, HPos::Center, VPos::Center),
+                ))
+                .map_err(draw_err(name))?;
                 root.draw(&Text::new(
                     v.info.name.clone(),
                     (cx, cy + 13),
@@ -198,17 +223,29 @@ impl Chart for GridHeatmap<'_> {
             }
             for (k, xv) in l.xs.iter().enumerate() {
                 let (px, py) = chart.backend_coord(&(k as f64 + 0.5, 0.0));
-                root.draw(&Text::new(fmt_num(*xv), (px, py + 8), anchored(14, INK, HPos::Center, VPos::Top)))
-                    .map_err(draw_err(name))?;
+                root.draw(&Text::new(
+                    fmt_num(*xv),
+                    (px, py + 8),
+                    anchored(14, INK, HPos::Center, VPos::Top),
+                ))
+                .map_err(draw_err(name))?;
             }
             for (k, yv) in l.ys.iter().enumerate() {
                 let (px, py) = chart.backend_coord(&(0.0, k as f64 + 0.5));
-                root.draw(&Text::new(fmt_num(*yv), (px - 8, py), anchored(14, INK, HPos::Right, VPos::Center)))
-                    .map_err(draw_err(name))?;
+                root.draw(&Text::new(
+                    fmt_num(*yv),
+                    (px - 8, py),
+                    anchored(14, INK, HPos::Right, VPos::Center),
+                ))
+                .map_err(draw_err(name))?;
             }
             let (bx, by) = chart.backend_coord(&(nx / 2.0, 0.0));
-            root.draw(&Text::new(l.x_key.clone(), (bx, by + 32), anchored(14, INK, HPos::Center, VPos::Top)))
-                .map_err(draw_err(name))?;
+            root.draw(&Text::new(
+                l.x_key.clone(),
+                (bx, by + 32),
+                anchored(14, INK, HPos::Center, VPos::Top),
+            ))
+            .map_err(draw_err(name))?;
             let (lx, ly) = chart.backend_coord(&(0.0, ny));
             root.draw(&Text::new(
                 format!("↑ {}", l.y_key),
@@ -222,11 +259,24 @@ impl Chart for GridHeatmap<'_> {
             let kw = 220;
             for p in 0..kw {
                 let t = p as f64 / (kw - 1) as f64;
-                root.draw(&Rectangle::new([(kx0 + p, ky), (kx0 + p + 1, ky + 12)], ramp(t).filled()))
-                    .map_err(draw_err(name))?;
+                root.draw(&Rectangle::new(
+                    [(kx0 + p, ky), (kx0 + p + 1, ky + 12)],
+                    ramp(t).filled(),
+                ))
+                .map_err(draw_err(name))?;
             }
-            let (worse, better) = if metric.lower_is_better { (hi, lo) } else { (lo, hi) };
-            let fmt = |v: f64| if metric.lower_is_better { fmt_steps(v) } else { fmt_num(v) };
+            let (worse, better) = if metric.lower_is_better {
+                (hi, lo)
+            } else {
+                (lo, hi)
+            };
+            let fmt = |v: f64| {
+                if metric.lower_is_better {
+                    fmt_steps(v)
+                } else {
+                    fmt_num(v)
+                }
+            };
             root.draw(&Text::new(
                 format!("worse {}", fmt(worse)),
                 (kx0, ky + 16),

@@ -43,7 +43,12 @@ fn est_g(e: &Estimate) -> String {
         return "<span class=na>n/a</span>".into();
     }
     if e.lo.is_finite() {
-        format!("{} <span class=ci>[{}, {}]</span>", f(e.point), f(e.lo), f(e.hi))
+        format!(
+            "{} <span class=ci>[{}, {}]</span>",
+            f(e.point),
+            f(e.lo),
+            f(e.hi)
+        )
     } else {
         f(e.point)
     }
@@ -109,6 +114,7 @@ th{background:#f1efe7;font-weight:600}
 td.num{font-variant-numeric:tabular-nums;white-space:nowrap}
 .ci{color:#6e6e7a;font-size:12px}.na{color:#9a9aa5}.tag{background:#efe9da;border-radius:3px;padding:0 5px;font-size:12px;white-space:nowrap}
 .flag{color:#b03428;font-weight:600}
+td:has(.sw){white-space:nowrap}
 .sw{display:inline-block;width:12px;height:12px;border-radius:2px;margin-right:6px;vertical-align:-1px;border:1px solid rgba(0,0,0,.25)}
 figure{margin:18px 0 30px;background:#fff;padding:10px;box-shadow:0 1px 3px rgba(0,0,0,.08)}
 figure svg{max-width:100%;height:auto;display:block}
@@ -222,7 +228,15 @@ fn answer(h: &mut String, s: &StudySummary) {
                 } else {
                     est_num(&c.poi_steps)
                 },
-                format!("{} / {}", p_cell(c.mw_final_success), if v.info.kind == VariantKind::Baseline { "<span class=na>n/a</span>".into() } else { p_cell(c.mw_steps) }),
+                format!(
+                    "{} / {}",
+                    p_cell(c.mw_final_success),
+                    if v.info.kind == VariantKind::Baseline {
+                        "<span class=na>n/a</span>".into()
+                    } else {
+                        p_cell(c.mw_steps)
+                    }
+                ),
             ),
             None => (
                 "<span class=na>reference</span>".into(),
@@ -369,8 +383,13 @@ fn run_status(h: &mut String, s: &StudySummary) {
             match v.runs.iter().find(|m| m.seed == *seed) {
                 Some(m) => {
                     let reach = match m.steps_to_threshold {
-                        Threshold::Reached(x) => format!("<br><span class=ci>threshold at {}</span>", fmt_steps(x as f64)),
-                        Threshold::Censored(_) => "<br><span class=ci>threshold not reached</span>".into(),
+                        Threshold::Reached(x) => format!(
+                            "<br><span class=ci>threshold at {}</span>",
+                            fmt_steps(x as f64)
+                        ),
+                        Threshold::Censored(_) => {
+                            "<br><span class=ci>threshold not reached</span>".into()
+                        }
                         _ => String::new(),
                     };
                     let _ = write!(

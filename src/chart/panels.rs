@@ -51,7 +51,10 @@ impl Chart for TermChart<'_> {
         "reward_terms"
     }
     fn size(&self) -> (u32, u32) {
-        (1400, 150 + PANEL_H * grid_rows(learned(self.summary).len()) as u32)
+        (
+            1400,
+            150 + PANEL_H * grid_rows(learned(self.summary).len()) as u32,
+        )
     }
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ChartError> {
         let s = self.summary;
@@ -98,7 +101,7 @@ impl Chart for TermChart<'_> {
         for (cell, &i) in cells.iter().zip(&which) {
             let v = &s.variants[i];
             let mut chart = ChartBuilder::on(cell)
-                .caption(&v.info.name, text(16, variant_colour(i)))
+                .caption(&v.info.name, text(16, INK))
                 .margin(10)
                 .x_label_area_size(40)
                 .y_label_area_size(62)
@@ -106,7 +109,7 @@ impl Chart for TermChart<'_> {
                 .map_err(draw_err(name))?;
             chart
                 .configure_mesh()
-                .light_line_style(RULE.mix(0.4))
+                .light_line_style(TRANSPARENT)
                 .bold_line_style(RULE)
                 .axis_style(MUTED)
                 .x_desc("environment steps")
@@ -118,7 +121,10 @@ impl Chart for TermChart<'_> {
                 .draw()
                 .map_err(draw_err(name))?;
             chart
-                .draw_series(LineSeries::new(vec![(0.0, 0.0), (x_max, 0.0)], MUTED.stroke_width(1)))
+                .draw_series(LineSeries::new(
+                    vec![(0.0, 0.0), (x_max, 0.0)],
+                    MUTED.stroke_width(1),
+                ))
                 .map_err(draw_err(name))?;
             for t in &v.terms {
                 let k = names.iter().position(|n| *n == t.name).unwrap_or(0);
@@ -158,7 +164,10 @@ impl Chart for ShapingChart<'_> {
         "shaping_check"
     }
     fn size(&self) -> (u32, u32) {
-        (1400, 150 + PANEL_H * grid_rows(learned(self.summary).len()) as u32)
+        (
+            1400,
+            150 + PANEL_H * grid_rows(learned(self.summary).len()) as u32,
+        )
     }
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ChartError> {
         let s = self.summary;
@@ -209,7 +218,9 @@ impl Chart for ShapingChart<'_> {
                 .collect();
             let (lo, hi) = ys
                 .iter()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &y| (a.min(y), b.max(y)));
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &y| {
+                    (a.min(y), b.max(y))
+                });
             let (lo, hi) = if lo.is_finite() && hi > lo {
                 let p = (hi - lo) * 0.08;
                 (lo - p, hi + p)
@@ -223,7 +234,10 @@ impl Chart for ShapingChart<'_> {
                 None => v.info.name.clone(),
             };
             let mut chart = ChartBuilder::on(cell)
-                .caption(title, text(16, if v.gaming.is_some() { ALERT } else { variant_colour(i) }))
+                .caption(
+                    title,
+                    text(16, if v.gaming.is_some() { ALERT } else { INK }),
+                )
                 .margin(10)
                 .x_label_area_size(40)
                 .y_label_area_size(62)
@@ -233,7 +247,7 @@ impl Chart for ShapingChart<'_> {
                 .set_secondary_coord(0.0..x_max, 0.0..1.0);
             chart
                 .configure_mesh()
-                .light_line_style(RULE.mix(0.4))
+                .light_line_style(TRANSPARENT)
                 .bold_line_style(RULE)
                 .axis_style(MUTED)
                 .x_desc("environment steps")
@@ -251,13 +265,21 @@ impl Chart for ShapingChart<'_> {
                 .axis_desc_style(text(13, MUTED))
                 .draw()
                 .map_err(draw_err(name))?;
-            let rpts = ret.steps.iter().zip(&ret.points).map(|(&x, p)| (x as f64, p.mean.point));
+            let rpts = ret
+                .steps
+                .iter()
+                .zip(&ret.points)
+                .map(|(&x, p)| (x as f64, p.mean.point));
             for seg in segments(rpts) {
                 chart
                     .draw_series(LineSeries::new(seg, variant_colour(i).stroke_width(3)))
                     .map_err(draw_err(name))?;
             }
-            let spts = suc.steps.iter().zip(&suc.points).map(|(&x, p)| (x as f64, p.mean.point));
+            let spts = suc
+                .steps
+                .iter()
+                .zip(&suc.points)
+                .map(|(&x, p)| (x as f64, p.mean.point));
             for seg in segments(spts) {
                 chart
                     .draw_secondary_series(DashedLineSeries::new(seg, 3, 3, MUTED.stroke_width(2)))

@@ -32,7 +32,7 @@ const VARIANT_RGB: [(u8, u8, u8); 10] = [
     (160, 84, 30),   // rust, mid-dark
     (80, 80, 80),    // graphite, dark
     (214, 200, 80),  // straw, very light
-    (60, 110, 190),  // cobalt, mid
+    (100, 110, 30),  // olive, mid-dark
     (200, 110, 150), // rose, mid-light
 ];
 
@@ -116,7 +116,11 @@ pub fn draw_err<E: std::fmt::Display>(chart: &'static str) -> impl Fn(E) -> Char
 
 /// Draw a polyline in the variant's style (solid or dashed) on a 2-D f64 chart.
 pub fn styled_line<DB: DrawingBackend>(
-    chart: &mut ChartContext<'_, DB, Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>>,
+    chart: &mut ChartContext<
+        '_,
+        DB,
+        Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+    >,
     points: &[(f64, f64)],
     style: ShapeStyle,
     dash: Option<(u32, u32)>,
@@ -139,7 +143,11 @@ pub fn styled_line<DB: DrawingBackend>(
 
 /// Draw markers of the variant's shape at the given points.
 pub fn markers<DB: DrawingBackend>(
-    chart: &mut ChartContext<'_, DB, Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>>,
+    chart: &mut ChartContext<
+        '_,
+        DB,
+        Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+    >,
     points: &[(f64, f64)],
     marker: Marker,
     colour: RGBColor,
@@ -156,7 +164,11 @@ pub fn markers<DB: DrawingBackend>(
             .draw_series(points.iter().map(|&p| Circle::new(p, size, stroke)))
             .map(|_| ()),
         Marker::Triangle => chart
-            .draw_series(points.iter().map(|&p| TriangleMarker::new(p, size + 1, filled)))
+            .draw_series(
+                points
+                    .iter()
+                    .map(|&p| TriangleMarker::new(p, size + 1, filled)),
+            )
             .map(|_| ()),
         Marker::Cross => chart
             .draw_series(points.iter().map(|&p| Cross::new(p, size, stroke)))
@@ -250,7 +262,10 @@ pub fn draw_legend<DB: DrawingBackend>(
                 Marker::Ring => area.draw(&Circle::new(c, 4, stroke)),
                 Marker::Triangle => area.draw(&TriangleMarker::new(c, 5, filled)),
                 Marker::Cross => area.draw(&Cross::new(c, 4, stroke)),
-                Marker::Square => area.draw(&Rectangle::new([(c.0 - 4, c.1 - 4), (c.0 + 4, c.1 + 4)], filled)),
+                Marker::Square => area.draw(&Rectangle::new(
+                    [(c.0 - 4, c.1 - 4), (c.0 + 4, c.1 + 4)],
+                    filled,
+                )),
             }
             .map_err(draw_err(name))?;
         }
@@ -304,22 +319,23 @@ fn trim(x: f64, digits: usize) -> String {
     }
 }
 
-/// A number with a sensible number of significant digits for a label.
+/// A number with at most three significant decimals and no trailing zeros, for labels and ticks:
+/// 14, 0.9, 0.875, 0.001, 2.5e-5.
 pub fn fmt_num(x: f64) -> String {
     if !x.is_finite() {
         return "n/a".into();
     }
     let a = x.abs();
-    if a == 0.0 {
+    if a < 5e-13 {
         "0".into()
     } else if a >= 1000.0 {
         format!("{x:.0}")
     } else if a >= 10.0 {
-        format!("{x:.1}")
-    } else if a >= 0.01 {
-        format!("{x:.3}")
+        trim(x, 1)
+    } else if a >= 0.001 {
+        trim(x, 3)
     } else {
-        format!("{x:.2e}")
+        format!("{x:.1e}")
     }
 }
 
@@ -359,5 +375,9 @@ mod tests {
         assert_eq!(fmt_steps(12_288.0), "12.3k");
         assert_eq!(fmt_steps(40_960.0), "41k");
         assert_eq!(fmt_steps(1_250_000.0), "1.25M");
+        assert_eq!(fmt_num(0.9000000001), "0.9");
+        assert_eq!(fmt_num(14.0), "14");
+        assert_eq!(fmt_num(0.001), "0.001");
+        assert_eq!(fmt_num(-2.5e-5), "-2.5e-5");
     }
 }

@@ -28,11 +28,13 @@ pub fn terminal_summary(s: &StudySummary) -> String {
         .max(7);
     let _ = writeln!(
         out,
-        "{:>4}  {:<width$}  {:<32}  {}",
+        "{:>4}  {:<width$}  {:<32}  final success (IQM, CI)",
         "rank",
         "variant",
-        format!("steps to {:.0}% success (IQM, CI)", s.study.success_threshold * 100.0),
-        "final success (IQM, CI)"
+        format!(
+            "steps to {:.0}% success (IQM, CI)",
+            s.study.success_threshold * 100.0
+        ),
     );
     for (r, &i) in s.ranking().iter().enumerate() {
         let v = &s.variants[i];

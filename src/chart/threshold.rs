@@ -30,7 +30,7 @@ impl Chart for ThresholdChart<'_> {
         "steps_to_threshold"
     }
     fn size(&self) -> (u32, u32) {
-        (1200, 160 + 52 * self.rows().len().max(1) as u32)
+        (1300, 160 + 52 * self.rows().len().max(1) as u32)
     }
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ChartError> {
         let s = self.summary;
@@ -63,7 +63,7 @@ impl Chart for ThresholdChart<'_> {
             + 24;
         let mut chart = ChartBuilder::on(&plot)
             .margin(14)
-            .margin_right(150)
+            .margin_right(260)
             .x_label_area_size(46)
             .y_label_area_size(label_w)
             .build_cartesian_2d(0.0..budget * 1.04, -0.5..n - 0.5)
@@ -72,7 +72,7 @@ impl Chart for ThresholdChart<'_> {
             .configure_mesh()
             .disable_y_mesh()
             .disable_y_axis()
-            .light_line_style(RULE.mix(0.5))
+            .light_line_style(TRANSPARENT)
             .bold_line_style(RULE)
             .axis_style(MUTED)
             .x_desc("environment steps to reach the success threshold")
@@ -146,7 +146,13 @@ impl Chart for ThresholdChart<'_> {
                 ))
                 .map_err(draw_err(name))?;
                 root.draw(&PathElement::new(
-                    vec![(cx, cy - 9), (cx + 9, cy), (cx, cy + 9), (cx - 9, cy), (cx, cy - 9)],
+                    vec![
+                        (cx, cy - 9),
+                        (cx + 9, cy),
+                        (cx, cy + 9),
+                        (cx - 9, cy),
+                        (cx, cy - 9),
+                    ],
                     INK.stroke_width(1),
                 ))
                 .map_err(draw_err(name))?;

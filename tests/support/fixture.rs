@@ -39,7 +39,10 @@ struct Spec {
 const SPECS: [Spec; 9] = [
     Spec {
         name: "all-terms",
-        shape: Shape::Rise { mid: 15_000.0, cap: 0.95 },
+        shape: Shape::Rise {
+            mid: 15_000.0,
+            cap: 0.95,
+        },
         acc_factor: 1.0,
         curriculum: "uniform",
         changes: &[],
@@ -48,7 +51,10 @@ const SPECS: [Spec; 9] = [
     },
     Spec {
         name: "no-progress-term",
-        shape: Shape::Rise { mid: 25_000.0, cap: 0.9 },
+        shape: Shape::Rise {
+            mid: 25_000.0,
+            cap: 0.9,
+        },
         acc_factor: 1.1,
         curriculum: "uniform",
         changes: &[("reward.waypoint_progress.weight", "1.0", "0.0")],
@@ -66,7 +72,10 @@ const SPECS: [Spec; 9] = [
     },
     Spec {
         name: "reverse-curriculum",
-        shape: Shape::Rise { mid: 11_000.0, cap: 0.97 },
+        shape: Shape::Rise {
+            mid: 11_000.0,
+            cap: 0.97,
+        },
         acc_factor: 0.9,
         curriculum: "reverse",
         changes: &[("curriculum.kind", "uniform", "reverse")],
@@ -75,7 +84,10 @@ const SPECS: [Spec; 9] = [
     },
     Spec {
         name: "grid-t0.01-a0.001",
-        shape: Shape::Rise { mid: 14_000.0, cap: 0.95 },
+        shape: Shape::Rise {
+            mid: 14_000.0,
+            cap: 0.95,
+        },
         acc_factor: 1.0,
         curriculum: "uniform",
         changes: &[
@@ -87,7 +99,10 @@ const SPECS: [Spec; 9] = [
     },
     Spec {
         name: "grid-t0.01-a0.01",
-        shape: Shape::Rise { mid: 19_000.0, cap: 0.93 },
+        shape: Shape::Rise {
+            mid: 19_000.0,
+            cap: 0.93,
+        },
         acc_factor: 0.6,
         curriculum: "uniform",
         changes: &[
@@ -99,7 +114,10 @@ const SPECS: [Spec; 9] = [
     },
     Spec {
         name: "grid-t0.1-a0.001",
-        shape: Shape::Rise { mid: 24_000.0, cap: 0.9 },
+        shape: Shape::Rise {
+            mid: 24_000.0,
+            cap: 0.9,
+        },
         acc_factor: 1.2,
         curriculum: "uniform",
         changes: &[
@@ -111,7 +129,10 @@ const SPECS: [Spec; 9] = [
     },
     Spec {
         name: "grid-t0.1-a0.01",
-        shape: Shape::Rise { mid: 36_000.0, cap: 0.85 },
+        shape: Shape::Rise {
+            mid: 36_000.0,
+            cap: 0.85,
+        },
         acc_factor: 0.7,
         curriculum: "uniform",
         changes: &[
@@ -223,7 +244,11 @@ fn write_run(dir: &Path, spec: &Spec, seed: u64, rng: &mut ChaCha8Rng) {
             }
             Shape::Gamed => {
                 let rise = 0.68 / (1.0 + (-(x - 9_000.0 * speed) / 2_500.0).exp());
-                let fall = if x > 18_000.0 { (x - 18_000.0) / 22_960.0 * 0.4 } else { 0.0 };
+                let fall = if x > 18_000.0 {
+                    (x - 18_000.0) / 22_960.0 * 0.4
+                } else {
+                    0.0
+                };
                 rise - fall + 0.03 * normal(rng)
             }
             Shape::Baseline { success } => success + 0.05 * normal(rng),
@@ -245,7 +270,11 @@ fn write_run(dir: &Path, spec: &Spec, seed: u64, rng: &mut ChaCha8Rng) {
             Shape::Gamed => 14.0 * x / BUDGET as f64 + 0.3 * normal(rng),
             _ => 0.5 * success + 0.05 * normal(rng),
         };
-        let progress_w = if spec.name == "no-progress-term" { 0.0 } else { 1.0 };
+        let progress_w = if spec.name == "no-progress-term" {
+            0.0
+        } else {
+            1.0
+        };
         let term_values = [
             10.0 * success,
             -(1.0 - 0.6 * success) * 2.0,
@@ -275,7 +304,11 @@ fn write_run(dir: &Path, spec: &Spec, seed: u64, rng: &mut ChaCha8Rng) {
         let _ = writeln!(
             terms,
             "{t},{}",
-            term_values.iter().map(|&v| f(v)).collect::<Vec<_>>().join(",")
+            term_values
+                .iter()
+                .map(|&v| f(v))
+                .collect::<Vec<_>>()
+                .join(",")
         );
     }
     let message = match status {
