@@ -30,7 +30,7 @@ const VARIANT_RGB: [(u8, u8, u8); 10] = [
     (150, 60, 140),  // plum, mid-dark
     (120, 190, 230), // pale sky, light
     (160, 84, 30),   // rust, mid-dark
-    (80, 80, 80),    // graphite, dark
+    (48, 48, 54),    // graphite, darkest
     (214, 200, 80),  // straw, very light
     (100, 110, 30),  // olive, mid-dark
     (200, 110, 150), // rose, mid-light
