@@ -199,7 +199,13 @@ fn strip_xml_decl(svg: &str) -> &str {
 fn answer(h: &mut String, s: &StudySummary) {
     h.push_str("<h2>The answer</h2><div class=answer>");
     let rank = s.ranking();
-    if let Some(&best) = rank.first() {
+    let best = rank
+        .first()
+        .filter(|&&i| s.variants[i].steps_to_threshold.iqm.point.is_finite());
+    if best.is_none() {
+        h.push_str("<p>No run has finished or reached the threshold yet, so there is no ranking to report.</p>");
+    }
+    if let Some(&best) = best {
         let b = &s.variants[best];
         let _ = write!(
             h,
