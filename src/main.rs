@@ -64,6 +64,18 @@ enum Command {
         #[arg(long)]
         no_calibrate: bool,
     },
+    /// Redraw summary.csv, the charts and report.html of a results folder from its files alone
+    /// (also for a partially finished study).
+    Report {
+        /// Results folder (the one holding study.json).
+        results_dir: PathBuf,
+        /// Bootstrap resamples per confidence interval.
+        #[arg(long, default_value_t = 2000, value_parser = clap::value_parser!(u64).range(1..))]
+        resamples: u64,
+        /// Seed of the bootstrap resampling.
+        #[arg(long, default_value_t = 0)]
+        seed: u64,
+    },
 }
 
 fn cores() -> usize {
@@ -140,6 +152,23 @@ fn main() -> ExitCode {
             {
                 Ok(text) => {
                     print!("{text}");
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(&e, e.is_bad_input()),
+            }
+        }
+        Command::Report {
+            results_dir,
+            resamples,
+            seed,
+        } => {
+            let mut opts = termwise::chart::ReportOptions::default();
+            opts.analysis.resamples = resamples as usize;
+            opts.analysis.seed = seed;
+            match termwise::chart::write_report(&results_dir, &opts) {
+                Ok(files) => {
+                    print!("{}", termwise::chart::terminal_summary(&files.summary));
+                    println!("report: {}", files.report_html.display());
                     ExitCode::SUCCESS
                 }
                 Err(e) => fail(&e, e.is_bad_input()),

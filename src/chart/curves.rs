@@ -1,0 +1,397 @@
+//! Learning curves (success, return, time to goal, RMS joint acceleration side by side) and the
+//! curriculum difficulty chart: IQM across seeds per variant with a shaded bootstrap band, optional
+//! faint per-seed lines, baselines as flat reference lines.
+
+use super::render::Chart;
+use super::style::*;
+use super::ChartError;
+use crate::analysis::{CurveMetric, StudySummary, VariantKind, VariantSummary};
+use plotters::coord::Shift;
+use plotters::prelude::*;
+
+/// One panel: metric, title, y-axis label, fixed y range (None = from data).
+struct Panel {
+    metric: CurveMetric,
+    title: &'static str,
+    y_label: &'static str,
+    fixed: Option<(f64, f64)>,
+}
+
+const LEARNING_PANELS: [Panel; 4] = [
+    Panel {
+        metric: CurveMetric::Success,
+        title: "Success rate (higher is better)",
+        y_label: "success rate (fraction of eval episodes)",
+        fixed: Some((0.0, 1.0)),
+    },
+    Panel {
+        metric: CurveMetric::Return,
+        title: "Mean return",
+        y_label: "return per episode (reward units)",
+        fixed: None,
+    },
+    Panel {
+        metric: CurveMetric::TimeToGoal,
+        title: "Time to goal, successful episodes (lower is faster)",
+        y_label: "time to goal (s)",
+        fixed: None,
+    },
+    Panel {
+        metric: CurveMetric::RmsJointAcc,
+        title: "RMS joint acceleration (lower is smoother)",
+        y_label: "RMS joint acceleration (rad/s²)",
+        fixed: None,
+    },
+];
+
+/// Side-by-side learning curves for every variant.
+pub struct LearningCurves<'a> {
+    /// The study.
+    pub summary: &'a StudySummary,
+    /// Draw faint per-seed lines.
+    pub per_seed: bool,
+}
+
+/// Curriculum difficulty over training for variants that have one.
+pub struct CurriculumChart<'a> {
+    /// The study.
+    pub summary: &'a StudySummary,
+    /// Indices of the variants to draw.
+    pub variants: Vec<usize>,
+}
+
+/// Variants whose curriculum is named (not none/uniform) or whose level changes over training.
+pub fn curriculum_variants(s: &StudySummary) -> Vec<usize> {
+    s.variants
+        .iter()
+        .filter(|v| v.info.kind == VariantKind::Learned)
+        .filter(|v| {
+            let named = v
+                .info
+                .curriculum
+                .as_deref()
+                .is_some_and(|c| !matches!(c, "" | "none" | "uniform" | "fixed"));
+            let pts = &v.curves[&CurveMetric::CurriculumLevel].points;
+            let varies = pts
+                .iter()
+                .any(|p| (p.iqm.point - pts[0].iqm.point).abs() > 1e-9);
+            named || varies
+        })
+        .map(|v| v.index)
+        .collect()
+}
+
+pub(super) fn variant_legend(s: &StudySummary, which: &[usize]) -> Vec<LegendEntry> {
+    which
+        .iter()
+        .map(|&i| {
+            let v = &s.variants[i];
+            let base = v.info.kind == VariantKind::Baseline;
+            LegendEntry {
+                label: if base {
+                    format!("{} (baseline, flat)", v.info.name)
+                } else {
+                    v.info.name.clone()
+                },
+                colour: variant_colour(i),
+                dash: if base { Some((6, 6)) } else { variant_dash(i) },
+                marker: (!base).then(|| variant_marker(i)),
+            }
+        })
+        .collect()
+}
+
+impl Chart for LearningCurves<'_> {
+    fn stem(&self) -> &'static str {
+        "learning_curves"
+    }
+    fn size(&self) -> (u32, u32) {
+        (1400, 1040)
+    }
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ChartError> {
+        let s = self.summary;
+        let name = self.stem();
+        let head = draw_title(
+            root,
+            "How fast does each variant learn, and how well does it move?",
+            &format!(
+                "Lines: IQM across seeds; bands: {:.0}% stratified bootstrap CI; {}dashed flat lines: baselines. X: environment steps.",
+                s.options.confidence * 100.0,
+                if self.per_seed { "faint lines: single seeds; " } else { "" }
+            ),
+            name,
+        )?;
+        let all: Vec<usize> = (0..s.variants.len()).collect();
+        let legend = variant_legend(s, &all);
+        let (w, _) = root.dim_in_pixel();
+        let lh = legend_height(root, &legend, w);
+        let (top, rest) = root.split_vertically(head);
+        let _ = top;
+        let (legend_area, plots) = rest.split_vertically(lh);
+        draw_legend(&legend_area, &legend, name)?;
+        let cells = plots.split_evenly((2, 2));
+        for (cell, panel) in cells.iter().zip(&LEARNING_PANELS) {
+            draw_panel(cell, s, panel, &all, self.per_seed, name)?;
+        }
+        Ok(())
+    }
+}
+
+impl Chart for CurriculumChart<'_> {
+    fn stem(&self) -> &'static str {
+        "curriculum"
+    }
+    fn size(&self) -> (u32, u32) {
+        (1100, 620)
+    }
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ChartError> {
+        let s = self.summary;
+        let name = self.stem();
+        let head = draw_title(
+            root,
+            "How hard were the start states as training went on?",
+            "Curriculum difficulty (0 = easiest starts, 1 = full task); IQM across seeds with bootstrap CI band.",
+            name,
+        )?;
+        let legend = variant_legend(s, &self.variants);
+        let (w, _) = root.dim_in_pixel();
+        let lh = legend_height(root, &legend, w);
+        let (_, rest) = root.split_vertically(head);
+        let (legend_area, plot) = rest.split_vertically(lh);
+        draw_legend(&legend_area, &legend, name)?;
+        let panel = Panel {
+            metric: CurveMetric::CurriculumLevel,
+            title: "Curriculum difficulty",
+            y_label: "difficulty (0-1)",
+            fixed: Some((0.0, 1.0)),
+        };
+        draw_panel(&plot, s, &panel, &self.variants, true, name)
+    }
+}
+
+/// Split a curve into finite runs of points (gaps where the value is undefined).
+pub(super) fn segments(points: impl Iterator<Item = (f64, f64)>) -> Vec<Vec<(f64, f64)>> {
+    let mut out: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+    for (x, y) in points {
+        if y.is_finite() {
+            out.last_mut().expect("non-empty").push((x, y));
+        } else if !out.last().expect("non-empty").is_empty() {
+            out.push(Vec::new());
+        }
+    }
+    out.retain(|s| !s.is_empty());
+    out
+}
+
+fn y_range(s: &StudySummary, panel: &Panel, which: &[usize], per_seed: bool) -> (f64, f64) {
+    if let Some(r) = panel.fixed {
+        return r;
+    }
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    for &i in which {
+        let v = &s.variants[i];
+        for p in &v.curves[&panel.metric].points {
+            for y in [p.iqm.lo, p.iqm.hi, p.iqm.point] {
+                if y.is_finite() {
+                    lo = lo.min(y);
+                    hi = hi.max(y);
+                }
+            }
+        }
+        if per_seed {
+            for c in &v.seed_curves {
+                for r in &c.rows {
+                    let y = panel.metric.of(r);
+                    if y.is_finite() {
+                        lo = lo.min(y);
+                        hi = hi.max(y);
+                    }
+                }
+            }
+        }
+    }
+    if !lo.is_finite() {
+        return (0.0, 1.0);
+    }
+    let pad = ((hi - lo) * 0.06).max(1e-6 * hi.abs().max(1.0));
+    (lo - pad, hi + pad)
+}
+
+fn draw_panel<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    s: &StudySummary,
+    panel: &Panel,
+    which: &[usize],
+    per_seed: bool,
+    name: &'static str,
+) -> Result<(), ChartError> {
+    let x_max = s.study.budget_steps.max(1) as f64;
+    let (y0, y1) = y_range(s, panel, which, per_seed);
+    let mut chart = ChartBuilder::on(area)
+        .caption(panel.title, text(17, INK))
+        .margin(14)
+        .x_label_area_size(46)
+        .y_label_area_size(74)
+        .build_cartesian_2d(0.0..x_max, y0..y1)
+        .map_err(draw_err(name))?;
+    chart
+        .configure_mesh()
+        .light_line_style(TRANSPARENT)
+        .bold_line_style(RULE)
+        .axis_style(MUTED)
+        .x_desc("environment steps")
+        .y_desc(panel.y_label)
+        .x_label_formatter(&|x| fmt_steps(*x))
+        .y_label_formatter(&|y| fmt_num(*y))
+        .label_style(text(13, INK))
+        .axis_desc_style(text(14, INK))
+        .draw()
+        .map_err(draw_err(name))?;
+    if panel.metric == CurveMetric::Success {
+        let t = s.study.success_threshold;
+        chart
+            .draw_series(DashedLineSeries::new(
+                vec![(0.0, t), (x_max, t)],
+                4,
+                6,
+                MUTED.stroke_width(1),
+            ))
+            .map_err(draw_err(name))?;
+        chart
+            .draw_series(std::iter::once(Text::new(
+                format!("threshold {t}"),
+                (x_max * 0.01, t),
+                anchored(
+                    12,
+                    MUTED,
+                    plotters::style::text_anchor::HPos::Left,
+                    plotters::style::text_anchor::VPos::Bottom,
+                ),
+            )))
+            .map_err(draw_err(name))?;
+    }
+    // Faint per-seed lines first, then bands, then the IQM lines on top.
+    if per_seed {
+        for &i in which {
+            let v = &s.variants[i];
+            if v.info.kind == VariantKind::Baseline {
+                continue;
+            }
+            let faint = lighten(variant_colour(i), 0.6).stroke_width(1);
+            for c in &v.seed_curves {
+                let pts = c
+                    .rows
+                    .iter()
+                    .map(|r| (r.env_steps as f64, panel.metric.of(r)));
+                for seg in segments(pts) {
+                    chart
+                        .draw_series(LineSeries::new(seg, faint))
+                        .map_err(draw_err(name))?;
+                }
+            }
+        }
+    }
+    for &i in which {
+        draw_band(&mut chart, &s.variants[i], panel.metric, x_max, name)?;
+    }
+    for &i in which {
+        draw_centre(&mut chart, &s.variants[i], panel.metric, x_max, name)?;
+    }
+    Ok(())
+}
+
+type F64Chart<'a, DB> = ChartContext<
+    'a,
+    DB,
+    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+>;
+
+fn draw_band<DB: DrawingBackend>(
+    chart: &mut F64Chart<'_, DB>,
+    v: &VariantSummary,
+    metric: CurveMetric,
+    x_max: f64,
+    name: &'static str,
+) -> Result<(), ChartError> {
+    let c = &v.curves[&metric];
+    let fill = variant_colour(v.index).mix(0.16).filled();
+    if v.info.kind == VariantKind::Baseline {
+        if let Some(p) = c.points.first().filter(|p| p.iqm.lo.is_finite()) {
+            chart
+                .draw_series(std::iter::once(Rectangle::new(
+                    [(0.0, p.iqm.lo), (x_max, p.iqm.hi)],
+                    variant_colour(v.index).mix(0.08).filled(),
+                )))
+                .map_err(draw_err(name))?;
+        }
+        return Ok(());
+    }
+    let pts = c
+        .steps
+        .iter()
+        .zip(&c.points)
+        .map(|(&x, p)| (x as f64, p.iqm.lo, p.iqm.hi));
+    let mut run: Vec<(f64, f64, f64)> = Vec::new();
+    let mut flush = |run: &mut Vec<(f64, f64, f64)>| -> Result<(), ChartError> {
+        if run.len() >= 2 {
+            let mut poly: Vec<(f64, f64)> = run.iter().map(|&(x, lo, _)| (x, lo)).collect();
+            poly.extend(run.iter().rev().map(|&(x, _, hi)| (x, hi)));
+            chart
+                .draw_series(std::iter::once(Polygon::new(poly, fill)))
+                .map_err(draw_err(name))?;
+        }
+        run.clear();
+        Ok(())
+    };
+    for (x, lo, hi) in pts {
+        if lo.is_finite() && hi.is_finite() {
+            run.push((x, lo, hi));
+        } else {
+            flush(&mut run)?;
+        }
+    }
+    flush(&mut run)
+}
+
+fn draw_centre<DB: DrawingBackend>(
+    chart: &mut F64Chart<'_, DB>,
+    v: &VariantSummary,
+    metric: CurveMetric,
+    x_max: f64,
+    name: &'static str,
+) -> Result<(), ChartError> {
+    let c = &v.curves[&metric];
+    let colour = variant_colour(v.index);
+    if v.info.kind == VariantKind::Baseline {
+        if let Some(p) = c.points.first().filter(|p| p.iqm.point.is_finite()) {
+            let y = p.iqm.point;
+            styled_line(
+                chart,
+                &[(0.0, y), (x_max, y)],
+                colour.stroke_width(2),
+                Some((6, 6)),
+                name,
+            )?;
+        }
+        return Ok(());
+    }
+    let pts = c
+        .steps
+        .iter()
+        .zip(&c.points)
+        .map(|(&x, p)| (x as f64, p.iqm.point));
+    for seg in segments(pts) {
+        styled_line(
+            chart,
+            &seg,
+            colour.stroke_width(3),
+            variant_dash(v.index),
+            name,
+        )?;
+        let every = seg.len().div_ceil(12).max(1);
+        let marks: Vec<(f64, f64)> = seg.iter().copied().step_by(every).collect();
+        markers(chart, &marks, variant_marker(v.index), colour, 4, name)?;
+    }
+    Ok(())
+}

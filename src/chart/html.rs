@@ -1,0 +1,437 @@
+//! report.html: a single self-contained page (inline CSS and SVG, no external assets) that opens
+//! with the answer — the ranking with intervals — then the summary table, what each variant changed,
+//! the charts, run status and how the numbers were computed.
+
+use super::render::ChartFiles;
+use super::style::fmt_steps;
+use crate::analysis::{Estimate, RunStatus, StudySummary, Threshold, VariantKind, VariantSummary};
+use std::fmt::Write;
+
+/// Escape text for HTML.
+pub fn esc(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+fn est_num(e: &Estimate) -> String {
+    if !e.point.is_finite() {
+        return "<span class=na>n/a</span>".into();
+    }
+    if e.lo.is_finite() {
+        format!(
+            "{:.2} <span class=ci>[{:.2}, {:.2}]</span>",
+            e.point, e.lo, e.hi
+        )
+    } else {
+        format!("{:.2}", e.point)
+    }
+}
+
+fn est_g(e: &Estimate) -> String {
+    let f = |x: f64| {
+        if x.abs() >= 100.0 {
+            format!("{x:.0}")
+        } else if x.abs() >= 1.0 {
+            format!("{x:.2}")
+        } else {
+            format!("{x:.3}")
+        }
+    };
+    if !e.point.is_finite() {
+        return "<span class=na>n/a</span>".into();
+    }
+    if e.lo.is_finite() {
+        format!(
+            "{} <span class=ci>[{}, {}]</span>",
+            f(e.point),
+            f(e.lo),
+            f(e.hi)
+        )
+    } else {
+        f(e.point)
+    }
+}
+
+fn steps_cell(v: &VariantSummary) -> String {
+    if v.info.kind == VariantKind::Baseline {
+        return "<span class=na>baseline (no learning)</span>".into();
+    }
+    let t = &v.steps_to_threshold;
+    if !t.iqm.point.is_finite() {
+        return "<span class=na>no finished runs</span>".into();
+    }
+    let lb = if t.lower_bound { "≥ " } else { "" };
+    let mut s = format!(
+        "{lb}{} <span class=ci>[{}, {}]</span>",
+        fmt_steps(t.iqm.point),
+        fmt_steps(t.iqm.lo),
+        fmt_steps(t.iqm.hi)
+    );
+    if t.censored > 0 {
+        let _ = write!(
+            s,
+            " <span class=tag>{} of {} censored</span>",
+            t.censored,
+            t.reached + t.censored
+        );
+    }
+    if t.pending > 0 {
+        let _ = write!(s, " <span class=tag>{} unfinished</span>", t.pending);
+    }
+    s
+}
+
+fn p_cell(p: Option<crate::analysis::MannWhitney>) -> String {
+    match p {
+        Some(m) => format!("{:.3}", m.p_value),
+        None => "<span class=na>n/a</span>".into(),
+    }
+}
+
+fn swatch(v: &VariantSummary) -> String {
+    let c = super::style::variant_colour(v.index);
+    format!(
+        "<span class=sw style=\"background:rgb({},{},{})\"></span>{}",
+        c.0,
+        c.1,
+        c.2,
+        esc(&v.info.name)
+    )
+}
+
+const CSS: &str = "
+body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;color:#26262e;margin:0;background:#fbfaf7;line-height:1.45}
+main{max-width:1440px;margin:0 auto;padding:24px 32px 64px}
+h1{font-size:28px;margin:8px 0 4px}h2{font-size:21px;margin:36px 0 10px;border-bottom:2px solid #d9d6cc;padding-bottom:4px}
+.lede{color:#5c5c68;margin:0 0 16px}
+.answer{background:#fff;border-left:6px solid #183c78;padding:14px 20px;margin:12px 0;box-shadow:0 1px 3px rgba(0,0,0,.08)}
+.warn{background:#fff4ef;border-left:6px solid #b03428;padding:10px 18px;margin:10px 0}
+table{border-collapse:collapse;background:#fff;font-size:14px;margin:8px 0}
+th,td{padding:6px 10px;border-bottom:1px solid #e6e4dc;text-align:left;vertical-align:top}
+th{background:#f1efe7;font-weight:600}
+td.num{font-variant-numeric:tabular-nums;white-space:nowrap}
+.ci{color:#6e6e7a;font-size:12px}.na{color:#9a9aa5}.tag{background:#efe9da;border-radius:3px;padding:0 5px;font-size:12px;white-space:nowrap}
+.flag{color:#b03428;font-weight:600}
+td:has(.sw){white-space:nowrap}
+.sw{display:inline-block;width:12px;height:12px;border-radius:2px;margin-right:6px;vertical-align:-1px;border:1px solid rgba(0,0,0,.25)}
+figure{margin:18px 0 30px;background:#fff;padding:10px;box-shadow:0 1px 3px rgba(0,0,0,.08)}
+figure svg{max-width:100%;height:auto;display:block}
+figcaption{color:#4c4c58;font-size:14px;margin-top:6px}
+.st-done{color:#2b6a3a}.st-diverged{color:#b03428;font-weight:600}.st-interrupted{color:#a35d00;font-weight:600}.st-running{color:#375a9e}.st-missing{color:#777}
+code,pre{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:13px}
+pre{background:#fff;padding:10px;overflow:auto;border:1px solid #e6e4dc}
+";
+
+/// What each chart answers, shown under it.
+fn caption(stem: &str) -> &'static str {
+    match stem {
+        "learning_curves" => "IQM across seeds per variant with a shaded bootstrap confidence band; faint lines are single seeds; baselines are flat dashed lines. Read the success panel first: the earlier a curve crosses the dotted threshold, the faster the variant learns. The lower panels show how the learned motion differs (time to goal, joint acceleration).",
+        "steps_to_threshold" => "Steps to reach the success threshold per variant, fastest first: diamond = IQM, bar = confidence interval, dots = single runs, open triangles at the budget = runs that never reached it (censored; their true value is larger than the budget). Overlapping bars mean the data do not separate the variants.",
+        "reward_terms" => "Mean per-episode contribution of each reward term over training. The term with the largest magnitude drives the return; a term that grows while success stays flat is a candidate for being gamed.",
+        "shaping_check" => "Shaped return (solid) against task success (dotted, right axis) per variant. Return and success should rise together; a red frame marks a variant whose return kept rising after its success peaked and fell.",
+        "curriculum" => "Start-state difficulty over training for variants with a curriculum; a curve that stalls below 1 means the policy never mastered the full task distribution.",
+        "grid_sensitivity" => "Variants generated from a grid over two reward weights: IQM steps to threshold (left) and IQM final success (right). Dark cells are good; a sharp light/dark edge marks the sensitive region.",
+        _ => "",
+    }
+}
+
+/// Build the page.
+pub fn report_html(s: &StudySummary, charts: &[ChartFiles]) -> String {
+    let mut h = String::with_capacity(1 << 20);
+    let st = &s.status;
+    let _ = write!(
+        h,
+        "<!DOCTYPE html><html lang=en><head><meta charset=utf-8><meta name=viewport content=\"width=device-width,initial-scale=1\"><title>termwise — {}</title><style>{CSS}</style></head><body><main>",
+        esc(&s.study.name)
+    );
+    let _ = write!(
+        h,
+        "<h1>Study “{}”</h1><p class=lede>{} variants × {} seeds; budget {} environment steps per run; success threshold {}; reference variant <b>{}</b>. Runs: {} done, {} diverged, {} interrupted, {} running, {} missing (of {}).</p>",
+        esc(&s.study.name),
+        s.variants.len(),
+        s.study.seeds.len(),
+        fmt_steps(s.study.budget_steps as f64),
+        s.study.success_threshold,
+        esc(&s.reference),
+        st.done,
+        st.diverged,
+        st.interrupted,
+        st.running,
+        st.missing,
+        st.total()
+    );
+    if st.done < st.total() {
+        let _ = write!(
+            h,
+            "<div class=warn>This study is not complete: {} of {} runs finished at the budget. Figures use whatever the runs have written so far; unfinished runs are excluded from final and AUC figures and counted below.</div>",
+            st.done,
+            st.total()
+        );
+    }
+    answer(&mut h, s);
+    summary_table(&mut h, s);
+    changes(&mut h, s);
+    h.push_str("<h2>Charts</h2>");
+    for c in charts {
+        let _ = write!(
+            h,
+            "<figure id=\"chart-{}\">{}<figcaption>{}</figcaption></figure>",
+            c.stem,
+            strip_xml_decl(&c.svg_text),
+            caption(&c.stem)
+        );
+    }
+    run_status(&mut h, s);
+    methods(&mut h, s);
+    h.push_str("</main></body></html>\n");
+    h
+}
+
+fn strip_xml_decl(svg: &str) -> &str {
+    match svg.find("<svg") {
+        Some(i) => &svg[i..],
+        None => svg,
+    }
+}
+
+fn answer(h: &mut String, s: &StudySummary) {
+    h.push_str("<h2>The answer</h2><div class=answer>");
+    let rank = s.ranking();
+    let best = rank
+        .first()
+        .filter(|&&i| s.variants[i].steps_to_threshold.iqm.point.is_finite());
+    if best.is_none() {
+        h.push_str("<p>No run has finished or reached the threshold yet, so there is no ranking to report.</p>");
+    }
+    if let Some(&best) = best {
+        let b = &s.variants[best];
+        let _ = write!(
+            h,
+            "<p><b>{}</b> ranks first: it reached {:.0}% success in {} environment steps (IQM across seeds), with final success {}.</p>",
+            esc(&b.info.name),
+            s.study.success_threshold * 100.0,
+            steps_cell(b),
+            est_num(&b.final_success.iqm)
+        );
+    }
+    let _ = write!(
+        h,
+        "<table><tr><th>rank</th><th>variant</th><th>steps to {:.0}% success<br><span class=ci>IQM [{:.0}% CI]</span></th><th>final success<br><span class=ci>IQM [CI]</span></th><th>P(better final success than {})<br><span class=ci>[CI]</span></th><th>P(fewer steps than {})<br><span class=ci>[CI]</span></th><th>Mann-Whitney p<br><span class=ci>final success / steps</span></th><th>notes</th></tr>",
+        s.study.success_threshold * 100.0,
+        s.options.confidence * 100.0,
+        esc(&s.reference),
+        esc(&s.reference)
+    );
+    for (r, &i) in rank.iter().enumerate() {
+        let v = &s.variants[i];
+        let (poi_s, poi_t, mw) = match &v.vs_reference {
+            Some(c) => (
+                est_num(&c.poi_final_success),
+                if v.info.kind == VariantKind::Baseline {
+                    "<span class=na>n/a</span>".into()
+                } else {
+                    est_num(&c.poi_steps)
+                },
+                format!(
+                    "{} / {}",
+                    p_cell(c.mw_final_success),
+                    if v.info.kind == VariantKind::Baseline {
+                        "<span class=na>n/a</span>".into()
+                    } else {
+                        p_cell(c.mw_steps)
+                    }
+                ),
+            ),
+            None => (
+                "<span class=na>reference</span>".into(),
+                "<span class=na>reference</span>".into(),
+                String::new(),
+            ),
+        };
+        let mut notes = Vec::new();
+        if v.gaming.is_some() {
+            notes.push("<span class=flag>return rose while success fell</span>".to_string());
+        }
+        for (status, label) in [
+            (RunStatus::Diverged, "diverged"),
+            (RunStatus::Interrupted, "interrupted"),
+            (RunStatus::Running, "running"),
+            (RunStatus::Missing, "missing"),
+        ] {
+            let n = v.status.get(status);
+            if n > 0 {
+                notes.push(format!("<span class=tag>{n} {label}</span>"));
+            }
+        }
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td>{}</td></tr>",
+            r + 1,
+            swatch(v),
+            steps_cell(v),
+            est_num(&v.final_success.iqm),
+            poi_s,
+            poi_t,
+            mw,
+            notes.join(" ")
+        );
+    }
+    h.push_str("</table>");
+    let flagged: Vec<String> = s
+        .variants
+        .iter()
+        .filter_map(|v| {
+            v.gaming.map(|g| {
+                format!(
+                    "<b>{}</b> (success peaked at {} steps and then fell by {:.2} while the return kept rising)",
+                    esc(&v.info.name),
+                    fmt_steps(g.peak_step as f64),
+                    g.success_drop
+                )
+            })
+        })
+        .collect();
+    if !flagged.is_empty() {
+        let _ = write!(
+            h,
+            "<p class=flag>Reward may be gamed: {}. Check its reward terms before trusting its return.</p>",
+            flagged.join("; ")
+        );
+    }
+    h.push_str("<p class=ci>Ranking: fewest steps to threshold first (censored runs count as the budget), ties broken by final success; baselines last. P(…) is the probability that a random run of the variant beats a random run of the reference.</p></div>");
+}
+
+fn summary_table(h: &mut String, s: &StudySummary) {
+    h.push_str("<h2>Summary table</h2><p class=ci>IQM across runs with the bootstrap confidence interval; final figures are means over the last evaluations of each run. The same numbers, with means, are in summary.csv.</p><div style=\"overflow-x:auto\"><table><tr><th>variant</th><th>runs<br><span class=ci>done/planned</span></th><th>AUC<br><span class=ci>success curve, 0–1</span></th><th>final success</th><th>final return</th><th>time to goal<br><span class=ci>s</span></th><th>RMS joint acc.<br><span class=ci>rad/s²</span></th><th>peak joint acc.<br><span class=ci>rad/s²</span></th><th>RMS jerk<br><span class=ci>rad/s³</span></th><th>path length<br><span class=ci>m</span></th><th>min clearance<br><span class=ci>m</span></th><th>replans<br><span class=ci>per episode</span></th></tr>");
+    for v in &s.variants {
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td class=num>{}/{}</td>",
+            swatch(v),
+            v.status.done,
+            v.status.total()
+        );
+        for a in [
+            &v.auc,
+            &v.final_success,
+            &v.final_return,
+            &v.time_to_goal,
+            &v.rms_joint_acc,
+            &v.peak_joint_acc,
+            &v.rms_jerk,
+            &v.path_length,
+            &v.min_clearance,
+            &v.replans,
+        ] {
+            let _ = write!(h, "<td class=num>{}</td>", est_g(&a.iqm));
+        }
+        h.push_str("</tr>");
+    }
+    h.push_str("</table></div>");
+}
+
+fn changes(h: &mut String, s: &StudySummary) {
+    h.push_str("<h2>What each variant changed</h2><table><tr><th>variant</th><th>kind</th><th>changes relative to the base experiment</th><th>curriculum</th></tr>");
+    for v in &s.variants {
+        let mut c = String::new();
+        if v.info.changes.is_empty() {
+            c.push_str("<span class=na>none (the base configuration)</span>");
+        }
+        for ch in &v.info.changes {
+            let _ = write!(
+                c,
+                "<code>{}</code>: {} → <b>{}</b><br>",
+                esc(&ch.key),
+                esc(&ch.base),
+                esc(&ch.value)
+            );
+        }
+        if let Some(g) = &v.info.grid {
+            let cells: Vec<String> = g
+                .iter()
+                .map(|(k, x)| format!("<code>{}</code> = {x}", esc(k)))
+                .collect();
+            let _ = write!(c, "<span class=tag>grid</span> {}", cells.join(", "));
+        }
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            swatch(v),
+            match v.info.kind {
+                VariantKind::Learned => "learned",
+                VariantKind::Baseline => "baseline",
+            },
+            c,
+            esc(v.info.curriculum.as_deref().unwrap_or("—"))
+        );
+    }
+    h.push_str("</table>");
+    if !s.study.config_toml.is_empty() {
+        let _ = write!(
+            h,
+            "<details><summary>Experiment file as given</summary><pre>{}</pre></details>",
+            esc(&s.study.config_toml)
+        );
+    }
+}
+
+fn run_status(h: &mut String, s: &StudySummary) {
+    h.push_str("<h2>Run status</h2><table><tr><th>variant</th>");
+    for seed in &s.study.seeds {
+        let _ = write!(h, "<th>seed {seed}</th>");
+    }
+    h.push_str("</tr>");
+    for v in &s.variants {
+        let _ = write!(h, "<tr><td>{}</td>", swatch(v));
+        for seed in &s.study.seeds {
+            match v.runs.iter().find(|m| m.seed == *seed) {
+                Some(m) => {
+                    let reach = match m.steps_to_threshold {
+                        Threshold::Reached(x) => format!(
+                            "<br><span class=ci>threshold at {}</span>",
+                            fmt_steps(x as f64)
+                        ),
+                        Threshold::Censored(_) => {
+                            "<br><span class=ci>threshold not reached</span>".into()
+                        }
+                        _ => String::new(),
+                    };
+                    let _ = write!(
+                        h,
+                        "<td class=\"st-{0}\">{0}<br><span class=ci>{1} steps, {2} evals</span>{3}</td>",
+                        m.status.as_str(),
+                        fmt_steps(m.last_step as f64),
+                        m.evaluations,
+                        reach
+                    );
+                }
+                None => h.push_str("<td>—</td>"),
+            }
+        }
+        h.push_str("</tr>");
+    }
+    h.push_str("</table>");
+}
+
+fn methods(h: &mut String, s: &StudySummary) {
+    let o = &s.options;
+    let _ = write!(
+        h,
+        "<h2>How these numbers were computed</h2><ul>\
+<li>IQM = interquartile mean, the mean of the middle 50% of runs (25% trimmed mean); intervals are {:.0}% percentile intervals of a stratified bootstrap that resamples seeds within each variant, {} resamples, seed {} (Agarwal et al., “Deep RL at the Edge of the Statistical Precipice”, NeurIPS 2021).</li>\
+<li>Steps to threshold: first evaluation with success rate ≥ {}. Runs that finished without reaching it are censored at the budget (shown as such, ranked worse than any run that reached it; “≥” marks an IQM that is only a lower bound). Unfinished runs that have not reached it yet are left out and counted.</li>\
+<li>AUC: area under the success-rate curve from the first evaluation to the budget divided by its width (1 = always successful). Final figures: mean of the last {} evaluations.</li>\
+<li>Diverged runs count as failures: success 0 after divergence and final success 0; interrupted or running runs are excluded from AUC and final figures. Every run is listed under Run status.</li>\
+<li>Probability of improvement P(X &gt; Y) counts pairs of runs (ties count one half), with a stratified bootstrap interval. Mann-Whitney U p-values are two-sided: exact without ties for small samples, otherwise the normal approximation with tie and continuity corrections.</li>\
+<li>Reward-gaming flag: mean success fell by at least {} after its peak while mean return rose by at least {:.0}% of its range.</li></ul>",
+        o.confidence * 100.0,
+        o.resamples,
+        o.seed,
+        s.study.success_threshold,
+        s.study.final_window,
+        o.gaming_success_drop,
+        o.gaming_return_rise * 100.0
+    );
+}
