@@ -4,6 +4,7 @@
 
 use rand::Rng;
 
+use super::activation::tanh_fast;
 use super::gaussian::fill_standard_normal;
 
 /// One fully connected layer `y = W x + b`, `W` row-major (n_out x n_in).
@@ -19,7 +20,7 @@ pub struct Dense {
     pub b: Vec<f32>,
 }
 
-/// A tanh MLP: tanh after every layer but the last (linear output).
+/// A tanh MLP: tanh ([`tanh_fast`]) after every layer but the last (linear output).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Mlp {
     /// The layers, input first.
@@ -135,7 +136,7 @@ impl Mlp {
             };
             for (o, (row, &b)) in l.w.chunks_exact(l.n_in).zip(&l.b).enumerate() {
                 let y = dot(row, input) + b;
-                dst[o] = if i + 1 == n { y } else { y.tanh() };
+                dst[o] = if i + 1 == n { y } else { tanh_fast(y) };
             }
             std::mem::swap(&mut cur, &mut nxt);
         }

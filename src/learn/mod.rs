@@ -24,6 +24,7 @@
 //! }
 //! ```
 
+pub mod activation;
 mod adam;
 mod buffer;
 pub mod checkpoint;

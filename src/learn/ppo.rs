@@ -4,6 +4,7 @@
 
 use candle_core::{Device, Tensor, Var, D};
 
+use super::activation::tanh_t;
 use super::config::PpoConfig;
 use super::gaussian::{entropy_t, log_prob_t};
 use super::mlp::Mlp;
@@ -65,12 +66,17 @@ fn vars_of(m: &Mlp, dev: &Device) -> candle_core::Result<Vec<(Var, Var)>> {
         .collect()
 }
 
+/// `x W^T + 1 b^T` per layer, tanh between layers. The bias enters as the outer product of a
+/// ones column with `b` rather than a broadcast add, so its gradient `1^T grad` is a matrix
+/// product too (candle's reduction over the batch axis is several times slower on CPU).
 fn forward_t(x: &Tensor, layers: &[(Var, Var)]) -> candle_core::Result<Tensor> {
+    let ones = Tensor::ones((x.dim(0)?, 1), x.dtype(), x.device())?;
     let mut h = x.clone();
     for (i, (w, b)) in layers.iter().enumerate() {
-        h = h.matmul(&w.t()?)?.broadcast_add(b)?;
+        let bias = ones.matmul(&b.unsqueeze(0)?)?;
+        h = (h.matmul(&w.t()?)? + bias)?;
         if i + 1 < layers.len() {
-            h = h.tanh()?;
+            h = tanh_t(&h)?;
         }
     }
     Ok(h)
