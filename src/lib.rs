@@ -2,8 +2,12 @@
 //! planar-arm reaching task fastest and move best. The binary in `main.rs` only parses the command
 //! line; every capability lives in these modules (see DEVELOPERS.md for the code map).
 
+// Numeric kernels index several arrays by joint in lockstep, mirroring the equations they implement.
+#![allow(clippy::needless_range_loop)]
+
 pub mod analysis;
 pub mod chart;
+pub mod config;
 pub mod control;
 pub mod curriculum;
 pub mod fsio;

@@ -1,1 +1,14 @@
-//! `sim`: planar N-link arm simulator.
+//! `sim`: the planar N-link arm simulator — kinematics, rigid-body dynamics, integrators, limits, capsule
+//! geometry, scenarios with moving obstacles and goal jumps, and the per-step environment. Knows nothing
+//! about rewards or learning.
+
+pub mod arm;
+pub mod env;
+pub mod geometry;
+pub mod scenario;
+pub mod simulate;
+
+pub use arm::{Arm, JointVec, Link, MAX_JOINTS};
+pub use env::{ArmEnv, ArmState, StepReport};
+pub use geometry::{Capsule, Shape};
+pub use scenario::{ControlMode, Integrator, Motion, Obstacle, Scenario};
