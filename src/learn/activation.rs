@@ -55,7 +55,12 @@ impl CustomOp1 for FastTanh {
         Ok((CpuStorage::F32(y), l.shape().clone()))
     }
 
-    fn bwd(&self, _arg: &Tensor, res: &Tensor, grad: &Tensor) -> candle_core::Result<Option<Tensor>> {
+    fn bwd(
+        &self,
+        _arg: &Tensor,
+        res: &Tensor,
+        grad: &Tensor,
+    ) -> candle_core::Result<Option<Tensor>> {
         Ok(Some(grad.apply_op2_no_bwd(res, &TanhGrad)?))
     }
 }
@@ -115,7 +120,15 @@ mod tests {
         // tanh as well.
         let x = Var::new(&[-2.0f32, -0.3, 0.0, 0.7, 3.0], &Device::Cpu).unwrap();
         let y = tanh_t(x.as_tensor()).unwrap();
-        let g: Vec<f32> = y.sum_all().unwrap().backward().unwrap().get(&x).unwrap().to_vec1().unwrap();
+        let g: Vec<f32> = y
+            .sum_all()
+            .unwrap()
+            .backward()
+            .unwrap()
+            .get(&x)
+            .unwrap()
+            .to_vec1()
+            .unwrap();
         for (xi, gi) in [-2.0f64, -0.3, 0.0, 0.7, 3.0].iter().zip(g) {
             let h = 1e-5;
             let fd = (((xi + h).tanh() - (xi - h).tanh()) / (2.0 * h)) as f32;

@@ -179,6 +179,30 @@ mod tests {
     }
 
     #[test]
+    fn candle_forward_matches_the_fused_forward() {
+        // The rollout (plain Rust) and the update (candle) must compute the same network, or
+        // the first-epoch probability ratios would not be 1 (Schulman et al. 2017, eq. 6 needs
+        // pi_old to be the acting policy).
+        use rand::SeedableRng;
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(2);
+        let m = Mlp::orthogonal(&[7, 16, 16, 3], 1.4, 1.0, &mut rng);
+        let x: Vec<f32> = (0..5 * 7)
+            .map(|i| ((i * 37 % 11) as f32 - 5.0) * 0.3)
+            .collect();
+        let dev = Device::Cpu;
+        let vars = vars_of(&m, &dev).unwrap();
+        let t = forward_t(&Tensor::from_slice(&x, (5, 7), &dev).unwrap(), &vars).unwrap();
+        let got: Vec<Vec<f32>> = t.to_vec2().unwrap();
+        for (row, g) in x.chunks(7).zip(got) {
+            let mut y = [0.0f32; 3];
+            m.forward_alloc(row, &mut y);
+            for (a, b) in y.iter().zip(&g) {
+                assert!((a - b).abs() < 1e-5, "{y:?} vs {g:?}");
+            }
+        }
+    }
+
+    #[test]
     fn clipped_samples_have_no_policy_gradient() {
         // Where the clipped term is the minimum, d/dr of eq. 7 is zero (Schulman et al. 2017,
         // section 3); inside the band it is A.
