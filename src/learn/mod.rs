@@ -1,1 +1,54 @@
-//! `learn`: see DESIGN.md module map (filled by its issue).
+//! `learn`: the CPU PPO learner — Gaussian policy and value networks (candle for the update, a fused
+//! plain-Rust forward for rollouts), rollout buffer, GAE, PPO update, observation normalisation,
+//! Adam, checkpoints; metrics leave the loop through [`Observer`]. No TOML and no files other than
+//! checkpoints live here.
+//!
+//! Methods and sources:
+//! - PPO: Schulman, Wolski, Dhariwal, Radford, Klimov, "Proximal Policy Optimization Algorithms",
+//!   2017 (clipped objective eq. 7, continuous-control hyperparameters Table 3).
+//! - GAE: Schulman, Moritz, Levine, Jordan, Abbeel, "High-Dimensional Continuous Control Using
+//!   Generalized Advantage Estimation", ICLR 2016 (eq. 16).
+//! - Time-limit bootstrapping: Pardo, Tavakoli, Levdik, Kormushev, "Time Limits in Reinforcement
+//!   Learning", ICML 2018.
+//! - Adam: Kingma & Ba, "Adam: A Method for Stochastic Optimization", ICLR 2015 (Algorithm 1).
+//! - Running mean/variance: Welford, "Note on a method for calculating corrected sums of squares
+//!   and products", Technometrics 1962.
+//!
+//! ```no_run
+//! use termwise::learn::{Environment, NoObserver, PpoConfig, Trainer};
+//! # fn envs() -> Vec<Box<dyn Environment>> { unimplemented!() }
+//! let mut trainer = Trainer::new(PpoConfig::default(), envs(), 7).unwrap();
+//! while trainer.env_steps() < 100_000 {
+//!     let stats = trainer.iterate(&mut NoObserver).unwrap();
+//!     println!("{} {}", stats.env_steps, stats.mean_episode_return);
+//! }
+//! ```
+
+pub mod activation;
+mod adam;
+mod buffer;
+pub mod checkpoint;
+mod config;
+mod env;
+mod error;
+pub mod gae;
+pub mod gaussian;
+mod mlp;
+mod normalize;
+mod observer;
+mod policy;
+pub mod ppo;
+mod threads;
+mod trainer;
+
+pub use adam::{Adam, AdamParams};
+pub use buffer::RolloutBuffer;
+pub use config::PpoConfig;
+pub use env::{Environment, Transition};
+pub use error::LearnError;
+pub use mlp::{orthogonal, Mlp};
+pub use normalize::{ObsNormalizer, RunningMoments};
+pub use observer::{EpisodeEnd, IterationStats, NoObserver, Observer};
+pub use policy::Policy;
+pub use threads::pin_kernel_threads;
+pub use trainer::Trainer;
