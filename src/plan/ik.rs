@@ -121,3 +121,100 @@ pub fn damped_least_squares(
     let p = arm.effector(&q);
     (q, (goal[0] - p[0]).hypot(goal[1] - p[1]))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::{Rng, SeedableRng};
+
+    fn tip2(l1: f64, l2: f64, q: [f64; 2]) -> [f64; 2] {
+        [
+            l1 * q[0].cos() + l2 * (q[0] + q[1]).cos(),
+            l1 * q[0].sin() + l2 * (q[0] + q[1]).sin(),
+        ]
+    }
+
+    #[test]
+    fn two_link_matches_hand_worked_configurations() {
+        // Law of cosines for the planar two-link arm (Spong, Hutchinson & Vidyasagar, "Robot Modeling and
+        // Control", 2006, the two-link inverse kinematics example; from memory), worked by hand:
+        // l1 = l2 = 1, tip (1, 1): c2 = (2 - 2) / 2 = 0, so q2 = +-pi/2;
+        // q1 = atan2(1, 1) - atan2(+-1, 1) = 0 (elbow +pi/2) or pi/2 (elbow -pi/2).
+        let s = two_link(1.0, 1.0, [1.0, 1.0]);
+        assert_eq!(s.len(), 2);
+        let h = std::f64::consts::FRAC_PI_2;
+        assert!((s[0][0] - 0.0).abs() < 1e-12 && (s[0][1] - h).abs() < 1e-12, "{s:?}");
+        assert!((s[1][0] - h).abs() < 1e-12 && (s[1][1] + h).abs() < 1e-12, "{s:?}");
+        // 3-4-5 triangle: l1 = 3, l2 = 4, tip (5, 0): c2 = (25 - 9 - 16) / 24 = 0, q2 = pi/2,
+        // q1 = 0 - atan2(4, 3) = -0.927295218 (atan(4/3)).
+        let s = two_link(3.0, 4.0, [5.0, 0.0]);
+        assert!((s[0][0] + (4.0f64 / 3.0).atan()).abs() < 1e-12 && (s[0][1] - h).abs() < 1e-12);
+        assert!((s[1][0] - (4.0f64 / 3.0).atan()).abs() < 1e-12 && (s[1][1] + h).abs() < 1e-12);
+        // Fully stretched: tip at l1 + l2 on the x axis gives the single solution (0, 0).
+        let s = two_link(0.42, 0.33, [0.75, 0.0]);
+        assert_eq!(s.len(), 1);
+        assert!(s[0][0].abs() < 1e-7 && s[0][1].abs() < 1e-7);
+        // Out of reach (|p| > l1 + l2) and inside the hole (|p| < |l1 - l2|): no solution.
+        assert!(two_link(0.42, 0.33, [0.8, 0.0]).is_empty());
+        assert!(two_link(0.42, 0.33, [0.05, 0.0]).is_empty());
+        // Both solutions reproduce the tip by forward kinematics (round trip over random targets).
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        for _ in 0..200 {
+            let q = [rng.gen_range(-3.0..3.0), rng.gen_range(-3.0..3.0)];
+            let p = tip2(0.42, 0.33, q);
+            let sols = two_link(0.42, 0.33, p);
+            assert!(!sols.is_empty());
+            for s in sols {
+                let t = tip2(0.42, 0.33, s);
+                assert!((t[0] - p[0]).hypot(t[1] - p[1]) < 1e-9);
+            }
+        }
+    }
+
+    #[test]
+    fn damped_least_squares_reaches_three_link_targets() {
+        // DLS update dq = J^T (J J^T + lambda^2 I)^-1 e (Wampler 1986; Nakamura & Hanafusa 1986) must bring
+        // the tip of a 3-link arm to reachable targets (tips of random configurations) within 1e-6 m.
+        let link = |l: f64| crate::sim::Link {
+            length: l,
+            mass: 1.0,
+            com: l / 2.0,
+            inertia: l * l / 12.0,
+            damping: 0.0,
+            radius: 0.02,
+            q_min: -3.0,
+            q_max: 3.0,
+            v_max: 3.0,
+            tau_max: 10.0,
+            acc_max: 10.0,
+        };
+        let arm = Arm {
+            links: vec![link(0.36), link(0.28), link(0.19)],
+            gravity: 0.0,
+        };
+        let lo = [-3.0; MAX_JOINTS];
+        let hi = [3.0; MAX_JOINTS];
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        let settings = DlsSettings::default();
+        for _ in 0..100 {
+            let mut q = [0.0; MAX_JOINTS];
+            for v in q.iter_mut().take(3) {
+                *v = rng.gen_range(-2.5..2.5);
+            }
+            let goal = arm.effector(&q[..3]);
+            // Several seeds, as the planner does: at least one must converge; all converged ones are exact.
+            let mut best = f64::INFINITY;
+            for _ in 0..4 {
+                let mut seed = [0.0; MAX_JOINTS];
+                for v in seed.iter_mut().take(3) {
+                    *v = rng.gen_range(-3.0..3.0);
+                }
+                let (sol, res) = damped_least_squares(&arm, goal, &seed, &lo, &hi, &settings);
+                let tip = arm.effector(&sol[..3]);
+                assert!(((tip[0] - goal[0]).hypot(tip[1] - goal[1]) - res).abs() < 1e-15);
+                best = best.min(res);
+            }
+            assert!(best < 1e-6, "goal {goal:?}: best residual {best}");
+        }
+    }
+}

@@ -136,3 +136,56 @@ impl PlanSpec {
         Ok(())
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn fails(body: &str) -> ConfigError {
+        let src = format!("[other]\nx = 1\n\n[plan]\n{body}\n");
+        PlanSpec::from_toml_str(&src, "exp.toml").unwrap_err()
+    }
+
+    #[test]
+    fn defaults_are_valid_and_other_tables_ignored() {
+        let s = PlanSpec::from_toml_str("[study]\nname = \"x\"\n", "exp.toml").unwrap();
+        assert_eq!(s, PlanSpec::default());
+        let s = PlanSpec::from_toml_str("[plan]\nplanner = \"rrt-star\"\nwaypoints = 7\n", "e").unwrap();
+        assert_eq!((s.planner.as_str(), s.waypoints), ("rrt-star", 7));
+    }
+
+    #[test]
+    fn bad_values_name_the_key_and_line() {
+        let e = fails("waypoints = 1");
+        assert_eq!((e.path.as_str(), e.line), ("plan.waypoints", Some(5)), "{e}");
+        assert!(e.to_string().contains("between 2 and"), "{e}");
+        let e = fails("iterations = 0");
+        assert_eq!(e.path, "plan.iterations", "{e}");
+        let e = fails("time_budget_ms = -5.0");
+        assert_eq!(e.path, "plan.time_budget_ms", "{e}");
+        let e = fails("time_budget_ms = inf");
+        assert_eq!(e.path, "plan.time_budget_ms", "{e}");
+        let e = fails("step = nan");
+        assert_eq!(e.path, "plan.step", "{e}");
+        let e = fails("goal_bias = 1.0");
+        assert_eq!(e.path, "plan.goal_bias", "{e}");
+        let e = fails("rewire_factor = nan");
+        assert_eq!(e.path, "plan.rewire_factor", "{e}");
+        let e = fails("clearance_margin = 0.0");
+        assert_eq!(e.path, "plan.clearance_margin", "{e}");
+        let e = fails("ik_tolerance = nan");
+        assert_eq!(e.path, "plan.ik_tolerance", "{e}");
+        let e = fails("ik_seeds = 0");
+        assert_eq!(e.path, "plan.ik_seeds", "{e}");
+        let e = fails("planner = \"straight\"");
+        assert_eq!(e.path, "plan.planner", "{e}");
+        assert!(e.to_string().contains("rrt-star, bi-rrt-star"), "{e}");
+        // Unknown keys and wrong types are parse errors with the key path.
+        let e = fails("waypionts = 5");
+        assert!(e.to_string().contains("unknown field"), "{e}");
+        assert_eq!(e.line, Some(5), "{e}");
+        let e = fails("iterations = -3");
+        assert_eq!(e.path, "plan.iterations", "{e}");
+        assert!(!e.to_string().contains('\n'));
+    }
+}
