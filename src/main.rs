@@ -74,8 +74,14 @@ fn parse_point(s: &str) -> Result<[f64; 2], String> {
     if parts.len() != 2 {
         return Err(format!("expected X,Y, got {s:?}"));
     }
-    let x: f64 = parts[0].trim().parse().map_err(|e| format!("{e} in {s:?}"))?;
-    let y: f64 = parts[1].trim().parse().map_err(|e| format!("{e} in {s:?}"))?;
+    let x: f64 = parts[0]
+        .trim()
+        .parse()
+        .map_err(|e| format!("{e} in {s:?}"))?;
+    let y: f64 = parts[1]
+        .trim()
+        .parse()
+        .map_err(|e| format!("{e} in {s:?}"))?;
     Ok([x, y])
 }
 

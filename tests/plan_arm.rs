@@ -2,6 +2,9 @@
 //! planner's resolution, waypoints are evenly spaced along it, IK goals are reached, results are
 //! deterministic per seed, fallbacks are flagged, and replanning starts from the current state.
 
+// Waypoint checks index joints of several waypoints in lockstep.
+#![allow(clippy::needless_range_loop)]
+
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::path::Path;
@@ -31,7 +34,9 @@ fn fine_min_clearance(env: &ArmEnv, r: &PlanReport) -> f64 {
     let space = ArmSpace::new(env, r.margin);
     let mut worst = f64::INFINITY;
     for w in r.route.windows(2) {
-        let steps = (space.motion_bound(&w[0], &w[1]) / (r.margin / 10.0)).ceil().max(1.0) as usize;
+        let steps = (space.motion_bound(&w[0], &w[1]) / (r.margin / 10.0))
+            .ceil()
+            .max(1.0) as usize;
         for k in 0..=steps {
             let t = k as f64 / steps as f64;
             let q: Vec<f64> = (0..n).map(|i| w[0][i] + t * (w[1][i] - w[0][i])).collect();
@@ -70,14 +75,21 @@ fn check_paths(file: &str, planner: &str, goals: usize) -> (usize, usize) {
         }
         if r.path.fallback {
             fallback += 1;
-            assert_eq!(r.fallback_reason, Some(FallbackReason::NotFound), "goal {goal:?}");
+            assert_eq!(
+                r.fallback_reason,
+                Some(FallbackReason::NotFound),
+                "goal {goal:?}"
+            );
             continue;
         }
         found += 1;
         assert!(r.fallback_reason.is_none() && !r.timed_out);
         // The goal configuration puts the effector on the goal (IK tolerance 1e-4 m).
         let tip = r.path.points[sp.waypoints - 1];
-        assert!((tip[0] - goal[0]).hypot(tip[1] - goal[1]) < 1e-4, "{tip:?} {goal:?}");
+        assert!(
+            (tip[0] - goal[0]).hypot(tip[1] - goal[1]) < 1e-4,
+            "{tip:?} {goal:?}"
+        );
         let c = fine_min_clearance(&e, &r);
         assert!(c >= 0.0, "{file} goal {goal:?}: clearance {c} on the route");
         // Waypoints evenly spaced along the route: consecutive waypoints are never farther apart (in a
@@ -106,7 +118,10 @@ fn two_link_paths_are_collision_free_at_ten_times_finer_resolution() {
 fn three_link_paths_are_collision_free_at_ten_times_finer_resolution() {
     for planner in ["rrt-star", "bi-rrt-star"] {
         let (found, fallback) = check_paths("table-3link.toml", planner, 25);
-        assert!(found >= 22, "{planner}: {found} found, {fallback} fallbacks");
+        assert!(
+            found >= 22,
+            "{planner}: {found} found, {fallback} fallbacks"
+        );
     }
 }
 
@@ -114,8 +129,20 @@ fn three_link_paths_are_collision_free_at_ten_times_finer_resolution() {
 fn plans_are_deterministic_per_seed() {
     let e = env("table-2link-4obs.toml");
     let goal = [-0.2, 0.5];
-    let a = plan_path(&e, &[0.3, 0.8], goal, &spec(), &mut ChaCha8Rng::seed_from_u64(4));
-    let b = plan_path(&e, &[0.3, 0.8], goal, &spec(), &mut ChaCha8Rng::seed_from_u64(4));
+    let a = plan_path(
+        &e,
+        &[0.3, 0.8],
+        goal,
+        &spec(),
+        &mut ChaCha8Rng::seed_from_u64(4),
+    );
+    let b = plan_path(
+        &e,
+        &[0.3, 0.8],
+        goal,
+        &spec(),
+        &mut ChaCha8Rng::seed_from_u64(4),
+    );
     assert_eq!(a, b);
     assert!(!a.fallback);
 }
@@ -125,7 +152,14 @@ fn straight_line_when_it_is_free() {
     // The scenario's own goal is reachable in a straight joint-space line: the planner returns exactly that
     // (the shortest possible path to the nearest goal configuration), with equally spaced waypoints.
     let e = env("table-2link-4obs.toml");
-    let r = plan_detailed(&e, &[0.3, 0.8], [0.35, 0.45], &spec(), &mut ChaCha8Rng::seed_from_u64(0), false);
+    let r = plan_detailed(
+        &e,
+        &[0.3, 0.8],
+        [0.35, 0.45],
+        &spec(),
+        &mut ChaCha8Rng::seed_from_u64(0),
+        false,
+    );
     assert!(!r.path.fallback && r.iterations == 0 && r.route.len() == 2);
     let j = &r.path.joints;
     for k in 0..5 {
@@ -140,13 +174,30 @@ fn straight_line_when_it_is_free() {
 fn fallbacks_are_flagged_straight_lines() {
     let e = env("table-2link-4obs.toml");
     // Out of reach (reach 0.75 m): no IK solution, straight line toward the closest configuration.
-    let r = plan_detailed(&e, &[0.3, 0.8], [0.0, -0.85], &spec(), &mut ChaCha8Rng::seed_from_u64(0), false);
+    let r = plan_detailed(
+        &e,
+        &[0.3, 0.8],
+        [0.0, -0.85],
+        &spec(),
+        &mut ChaCha8Rng::seed_from_u64(0),
+        false,
+    );
     assert!(r.path.fallback);
-    assert_eq!(r.fallback_reason, Some(FallbackReason::NoFreeGoalConfiguration));
+    assert_eq!(
+        r.fallback_reason,
+        Some(FallbackReason::NoFreeGoalConfiguration)
+    );
     // Reachable but walled off: link 1 cannot pass the discs at (-0.35, 0.4) and (0.45, -0.25)
     // (worked by hand: their distance to link 1 is below link radius + disc radius at those angles), so the
     // goal configurations with |q1| ~ 2.59 for the goal (-0.6, 0) cannot be reached.
-    let r = plan_detailed(&e, &[0.3, 0.8], [-0.6, 0.0], &spec(), &mut ChaCha8Rng::seed_from_u64(0), false);
+    let r = plan_detailed(
+        &e,
+        &[0.3, 0.8],
+        [-0.6, 0.0],
+        &spec(),
+        &mut ChaCha8Rng::seed_from_u64(0),
+        false,
+    );
     assert!(r.path.fallback && r.fallback_reason == Some(FallbackReason::NotFound));
     assert_eq!(r.iterations, spec().iterations);
     // The fallback is the straight joint-space line, evenly resampled.
@@ -160,7 +211,14 @@ fn fallbacks_are_flagged_straight_lines() {
     // A start in collision: fallback without a search.
     let inside = [-0.507, 0.0]; // pointing straight through the disc at (0.45, -0.25)
     assert!(e.clearances(&inside).0 < 0.0);
-    let r = plan_detailed(&e, &inside, [0.35, 0.45], &spec(), &mut ChaCha8Rng::seed_from_u64(0), false);
+    let r = plan_detailed(
+        &e,
+        &inside,
+        [0.35, 0.45],
+        &spec(),
+        &mut ChaCha8Rng::seed_from_u64(0),
+        false,
+    );
     assert_eq!(r.fallback_reason, Some(FallbackReason::StartBlocked));
 }
 

@@ -54,8 +54,16 @@ fn path_around_one_disc_is_within_3_percent_of_the_analytic_shortest() {
             let cost = termwise::plan::planner::path_cost(&path, 2);
             assert!((cost - s.cost).abs() < 1e-9);
             // Never shorter than the optimum (it is a lower bound), and within 3 % of it.
-            assert!(cost >= opt - 1e-9, "{} seed {seed}: {cost} < {opt}", planner.name());
-            assert!(cost <= opt * 1.03, "{} seed {seed}: {cost} vs {opt}", planner.name());
+            assert!(
+                cost >= opt - 1e-9,
+                "{} seed {seed}: {cost} < {opt}",
+                planner.name()
+            );
+            assert!(
+                cost <= opt * 1.03,
+                "{} seed {seed}: {cost} vs {opt}",
+                planner.name()
+            );
         }
     }
 }
@@ -73,7 +81,12 @@ fn path_in_free_space_is_within_half_a_percent_of_the_straight_line() {
             let mut rng = ChaCha8Rng::seed_from_u64(seed);
             let s = planner.search(&plane, &p, &budget(2000), &mut rng);
             assert_valid_path(&plane, s.path.as_ref().unwrap(), &p);
-            assert!(s.cost >= straight - 1e-12 && s.cost <= straight * 1.005, "{} {}", planner.name(), s.cost);
+            assert!(
+                s.cost >= straight - 1e-12 && s.cost <= straight * 1.005,
+                "{} {}",
+                planner.name(),
+                s.cost
+            );
         }
     }
 }
@@ -95,8 +108,16 @@ fn mean_cost_falls_as_the_budget_grows() {
                 / 8.0;
             means.push(m);
         }
-        assert!(means[0] > means[1] && means[1] > means[2], "{}: {means:?}", planner.name());
-        assert!(means[2] > opt && means[2] < opt * 1.02, "{}: {means:?}", planner.name());
+        assert!(
+            means[0] > means[1] && means[1] > means[2],
+            "{}: {means:?}",
+            planner.name()
+        );
+        assert!(
+            means[2] > opt && means[2] < opt * 1.02,
+            "{}: {means:?}",
+            planner.name()
+        );
     }
 }
 

@@ -78,7 +78,11 @@ fn effector_curve(arm: &Arm, route: &[JointVec], n: usize, per: usize) -> Vec<(f
 }
 
 fn draw_arm<DB: DrawingBackend>(
-    chart: &mut ChartContext<'_, DB, Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>>,
+    chart: &mut ChartContext<
+        '_,
+        DB,
+        Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+    >,
     arm: &Arm,
     q: &JointVec,
     colour: RGBColor,
@@ -89,7 +93,10 @@ fn draw_arm<DB: DrawingBackend>(
     let fill = colour.mix(0.35).filled();
     for i in 0..m - 1 {
         let r = arm.links[i].radius;
-        chart.draw_series(std::iter::once(Polygon::new(capsule(pts[i], pts[i + 1], r), fill)))?;
+        chart.draw_series(std::iter::once(Polygon::new(
+            capsule(pts[i], pts[i + 1], r),
+            fill,
+        )))?;
         chart.draw_series(std::iter::once(PathElement::new(
             {
                 let mut c = capsule(pts[i], pts[i + 1], r);

@@ -143,8 +143,14 @@ mod tests {
         let s = two_link(1.0, 1.0, [1.0, 1.0]);
         assert_eq!(s.len(), 2);
         let h = std::f64::consts::FRAC_PI_2;
-        assert!((s[0][0] - 0.0).abs() < 1e-12 && (s[0][1] - h).abs() < 1e-12, "{s:?}");
-        assert!((s[1][0] - h).abs() < 1e-12 && (s[1][1] + h).abs() < 1e-12, "{s:?}");
+        assert!(
+            (s[0][0] - 0.0).abs() < 1e-12 && (s[0][1] - h).abs() < 1e-12,
+            "{s:?}"
+        );
+        assert!(
+            (s[1][0] - h).abs() < 1e-12 && (s[1][1] + h).abs() < 1e-12,
+            "{s:?}"
+        );
         // 3-4-5 triangle: l1 = 3, l2 = 4, tip (5, 0): c2 = (25 - 9 - 16) / 24 = 0, q2 = pi/2,
         // q1 = 0 - atan2(4, 3) = -0.927295218 (atan(4/3)).
         let s = two_link(3.0, 4.0, [5.0, 0.0]);

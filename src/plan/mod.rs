@@ -203,9 +203,8 @@ pub fn plan_detailed(
         blocked.extend(best_effort);
         (free, blocked)
     };
-    let by_distance = |a: &JointVec, b: &JointVec| {
-        distance(a, &start, n).total_cmp(&distance(b, &start, n))
-    };
+    let by_distance =
+        |a: &JointVec, b: &JointVec| distance(a, &start, n).total_cmp(&distance(b, &start, n));
     free.sort_by(by_distance);
     let mut report = PlanReport {
         path: ReferencePath {
@@ -270,7 +269,12 @@ pub fn plan_detailed(
             Some(p) => {
                 report.search_cost = found.cost;
                 let p = smooth::shortcut_vertices(&space, &p);
-                Some(smooth::shortcut_random(&space, p, spec.shortcut_passes, rng))
+                Some(smooth::shortcut_random(
+                    &space,
+                    p,
+                    spec.shortcut_passes,
+                    rng,
+                ))
             }
             None => {
                 report.fallback_reason = Some(FallbackReason::NotFound);

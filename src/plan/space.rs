@@ -159,7 +159,9 @@ impl<'a> ArmSpace<'a> {
 
     /// Upper bound on how far any point of the arm moves along the segment a -> b, m.
     pub fn motion_bound(&self, a: &JointVec, b: &JointVec) -> f64 {
-        (0..self.n).map(|i| (b[i] - a[i]).abs() * self.lever[i]).sum()
+        (0..self.n)
+            .map(|i| (b[i] - a[i]).abs() * self.lever[i])
+            .sum()
     }
 
     /// Whether q lies inside the joint bounds.

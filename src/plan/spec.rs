@@ -77,60 +77,98 @@ impl PlanSpec {
 
     /// Check every setting; errors name the key as `plan.<field>`.
     pub fn validate(&self, origin: &str, src: &str) -> Result<(), ConfigError> {
-        let err = |key: &str, msg: String| Err(ConfigError::at(origin, src, &format!("plan.{key}"), msg));
+        let err =
+            |key: &str, msg: String| Err(ConfigError::at(origin, src, &format!("plan.{key}"), msg));
         if planner_by_name(&self.planner).is_none() {
             let names: Vec<&str> = PLANNERS.iter().map(|p| p.name()).collect();
             return err(
                 "planner",
-                format!("unknown planner {:?}; choose one of: {}", self.planner, names.join(", ")),
+                format!(
+                    "unknown planner {:?}; choose one of: {}",
+                    self.planner,
+                    names.join(", ")
+                ),
             );
         }
         if self.iterations == 0 || self.iterations > MAX_ITERATIONS {
             return err(
                 "iterations",
-                format!("must be between 1 and {MAX_ITERATIONS}, got {}", self.iterations),
+                format!(
+                    "must be between 1 and {MAX_ITERATIONS}, got {}",
+                    self.iterations
+                ),
             );
         }
-        if !(self.time_budget_ms.is_finite() && self.time_budget_ms > 0.0 && self.time_budget_ms <= 3.6e6) {
+        if !(self.time_budget_ms.is_finite()
+            && self.time_budget_ms > 0.0
+            && self.time_budget_ms <= 3.6e6)
+        {
             return err(
                 "time_budget_ms",
-                format!("must be a number of milliseconds in (0, 3600000], got {}", self.time_budget_ms),
+                format!(
+                    "must be a number of milliseconds in (0, 3600000], got {}",
+                    self.time_budget_ms
+                ),
             );
         }
         if self.waypoints < 2 || self.waypoints > 10_000 {
             return err(
                 "waypoints",
-                format!("must be between 2 and 10000 (start and goal at least), got {}", self.waypoints),
+                format!(
+                    "must be between 2 and 10000 (start and goal at least), got {}",
+                    self.waypoints
+                ),
             );
         }
         if !(self.step.is_finite() && self.step > 0.0) {
-            return err("step", format!("must be a finite number of radians > 0, got {}", self.step));
+            return err(
+                "step",
+                format!("must be a finite number of radians > 0, got {}", self.step),
+            );
         }
         if !(self.goal_bias.is_finite() && (0.0..1.0).contains(&self.goal_bias)) {
-            return err("goal_bias", format!("must be a probability in [0, 1), got {}", self.goal_bias));
+            return err(
+                "goal_bias",
+                format!("must be a probability in [0, 1), got {}", self.goal_bias),
+            );
         }
         if !(self.rewire_factor.is_finite() && self.rewire_factor > 0.0) {
             return err(
                 "rewire_factor",
-                format!("must be a finite number > 0 (> 1 for asymptotic optimality), got {}", self.rewire_factor),
+                format!(
+                    "must be a finite number > 0 (> 1 for asymptotic optimality), got {}",
+                    self.rewire_factor
+                ),
             );
         }
         if self.shortcut_passes > 1_000_000 {
-            return err("shortcut_passes", format!("must be at most 1000000, got {}", self.shortcut_passes));
+            return err(
+                "shortcut_passes",
+                format!("must be at most 1000000, got {}", self.shortcut_passes),
+            );
         }
         if !(self.clearance_margin.is_finite() && self.clearance_margin > 0.0) {
             return err(
                 "clearance_margin",
-                format!("must be a finite number of metres > 0, got {}", self.clearance_margin),
+                format!(
+                    "must be a finite number of metres > 0, got {}",
+                    self.clearance_margin
+                ),
             );
         }
         if self.ik_seeds == 0 || self.ik_seeds > 10_000 {
-            return err("ik_seeds", format!("must be between 1 and 10000, got {}", self.ik_seeds));
+            return err(
+                "ik_seeds",
+                format!("must be between 1 and 10000, got {}", self.ik_seeds),
+            );
         }
         if !(self.ik_tolerance.is_finite() && self.ik_tolerance > 0.0) {
             return err(
                 "ik_tolerance",
-                format!("must be a finite number of metres > 0, got {}", self.ik_tolerance),
+                format!(
+                    "must be a finite number of metres > 0, got {}",
+                    self.ik_tolerance
+                ),
             );
         }
         Ok(())
@@ -150,14 +188,19 @@ mod tests {
     fn defaults_are_valid_and_other_tables_ignored() {
         let s = PlanSpec::from_toml_str("[study]\nname = \"x\"\n", "exp.toml").unwrap();
         assert_eq!(s, PlanSpec::default());
-        let s = PlanSpec::from_toml_str("[plan]\nplanner = \"rrt-star\"\nwaypoints = 7\n", "e").unwrap();
+        let s = PlanSpec::from_toml_str("[plan]\nplanner = \"rrt-star\"\nwaypoints = 7\n", "e")
+            .unwrap();
         assert_eq!((s.planner.as_str(), s.waypoints), ("rrt-star", 7));
     }
 
     #[test]
     fn bad_values_name_the_key_and_line() {
         let e = fails("waypoints = 1");
-        assert_eq!((e.path.as_str(), e.line), ("plan.waypoints", Some(5)), "{e}");
+        assert_eq!(
+            (e.path.as_str(), e.line),
+            ("plan.waypoints", Some(5)),
+            "{e}"
+        );
         assert!(e.to_string().contains("between 2 and"), "{e}");
         let e = fails("iterations = 0");
         assert_eq!(e.path, "plan.iterations", "{e}");

@@ -61,8 +61,9 @@ impl Tree {
     ) -> Tree {
         let d = space.dim();
         let df = d as f64;
-        let gamma_star =
-            2.0 * (1.0 + 1.0 / df).powf(1.0 / df) * (space.volume() / unit_ball_volume(d)).powf(1.0 / df);
+        let gamma_star = 2.0
+            * (1.0 + 1.0 / df).powf(1.0 / df)
+            * (space.volume() / unit_ball_volume(d)).powf(1.0 / df);
         let mut t = Tree {
             n: d,
             nodes: Vec::with_capacity(capacity),
