@@ -76,10 +76,57 @@ enum Command {
         #[arg(long, default_value_t = 0)]
         seed: u64,
     },
+    /// Plan a reference path in a scenario and draw it.
+    ///
+    /// Writes FILE.svg (workspace, obstacles, the arm at the start and at the goal configuration, the
+    /// effector path and the waypoints) and FILE.csv beside it (header `k,q1..qN,x,y`, one row per waypoint,
+    /// angles in rad, positions in m). Planner settings: the `[plan]` table of --spec (see `PlanSpec`).
+    Plan {
+        /// Scenario TOML file.
+        scenario: PathBuf,
+        /// Seed of the planner's random stream.
+        #[arg(long, default_value_t = 0)]
+        seed: u64,
+        /// Output SVG file.
+        #[arg(long)]
+        out: PathBuf,
+        /// TOML file with a `[plan]` table of planner settings (defaults otherwise).
+        #[arg(long)]
+        spec: Option<PathBuf>,
+        /// Goal position `X,Y` in m (default: the scenario's goal).
+        #[arg(long, value_parser = parse_point, allow_hyphen_values = true)]
+        goal: Option<[f64; 2]>,
+        /// Redraw the scenario's random obstacles (from `[random]`) and goal from the seed.
+        #[arg(long)]
+        randomize: bool,
+        /// Also draw the search trees.
+        #[arg(long)]
+        tree: bool,
+        /// Also write FILE.png.
+        #[arg(long)]
+        png: bool,
+    },
 }
 
 fn cores() -> usize {
     std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1)
+}
+
+/// Parse `X,Y` into a point.
+fn parse_point(s: &str) -> Result<[f64; 2], String> {
+    let parts: Vec<&str> = s.split(',').collect();
+    if parts.len() != 2 {
+        return Err(format!("expected X,Y, got {s:?}"));
+    }
+    let x: f64 = parts[0]
+        .trim()
+        .parse()
+        .map_err(|e| format!("{e} in {s:?}"))?;
+    let y: f64 = parts[1]
+        .trim()
+        .parse()
+        .map_err(|e| format!("{e} in {s:?}"))?;
+    Ok([x, y])
 }
 
 fn init_logging(verbose: u8) {
@@ -169,6 +216,42 @@ fn main() -> ExitCode {
                 Ok(files) => {
                     print!("{}", termwise::chart::terminal_summary(&files.summary));
                     println!("report: {}", files.report_html.display());
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(&e, e.is_bad_input()),
+            }
+        }
+        Command::Plan {
+            scenario,
+            seed,
+            out,
+            spec,
+            goal,
+            randomize,
+            tree,
+            png,
+        } => {
+            let args = termwise::plan::command::PlanArgs {
+                scenario,
+                seed,
+                out,
+                spec,
+                goal,
+                randomize,
+                tree,
+                png,
+            };
+            match termwise::plan::command::run_plan(&args) {
+                Ok(o) => {
+                    eprintln!(
+                        "termwise: planned {:.3} rad in joint space ({} iterations{}), wrote {} and {}{}",
+                        o.report.cost,
+                        o.report.iterations,
+                        if o.report.path.fallback { ", FALLBACK" } else { "" },
+                        o.svg.display(),
+                        o.csv.display(),
+                        o.png.map(|p| format!(" and {}", p.display())).unwrap_or_default()
+                    );
                     ExitCode::SUCCESS
                 }
                 Err(e) => fail(&e, e.is_bad_input()),
