@@ -36,6 +36,10 @@ enum Command {
         #[arg(long)]
         out: PathBuf,
     },
+    /// List the reward terms with their parameters, defaults and meaning (from the term registry).
+    ///
+    /// Each term is switched on by a `[reward.<name>]` table in the experiment file.
+    Terms,
 }
 
 fn init_logging(verbose: u8) {
@@ -74,5 +78,9 @@ fn main() -> ExitCode {
             }
             Err(e) => fail(&e, e.is_bad_input()),
         },
+        Command::Terms => {
+            print!("{}", termwise::reward::describe_terms());
+            ExitCode::SUCCESS
+        }
     }
 }
