@@ -1,6 +1,6 @@
 //! The reference path prepared for per-step projection: the effector polyline with precomputed segment
-//! directions and arc lengths, so projecting the effector costs one pass without square roots per segment
-//! and no allocation. Gives the same answer as `plan::Polyline::project` (checked in the tests).
+//! directions and arc lengths, so projecting the effector needs no square root per segment and no
+//! allocation. Gives the same answer as `plan::Polyline::project` (checked in the tests).
 
 use crate::plan::ReferencePath;
 
@@ -18,17 +18,20 @@ pub struct PathPoint {
     pub remaining: f64,
 }
 
-/// A reference path's effector polyline, ready for fast projection.
+/// A reference path's effector polyline, ready for fast projection. Segment data is stored column-wise
+/// so the distance pass vectorises.
 #[derive(Clone, Debug, Default)]
 pub struct PathTrack {
     /// Segment start points.
-    start: Vec<[f64; 2]>,
+    ax: Vec<f64>,
+    ay: Vec<f64>,
     /// Segment vectors b - a.
-    dir: Vec<[f64; 2]>,
+    dx: Vec<f64>,
+    dy: Vec<f64>,
     /// 1 / |b - a|^2 (0 for a degenerate segment).
     inv_len2: Vec<f64>,
-    /// Segment lengths.
-    seg_len: Vec<f64>,
+    /// |b - a|.
+    len: Vec<f64>,
     /// Arc length at each segment start.
     acc: Vec<f64>,
     /// The last point.
@@ -37,6 +40,9 @@ pub struct PathTrack {
     /// False until a path with at least one point is loaded.
     loaded: bool,
 }
+
+/// Segments handled per pass of the projection (stack scratch size).
+const CHUNK: usize = 32;
 
 /// The projection of a point on the track, before the goal is known.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -60,35 +66,41 @@ impl PathTrack {
 
     /// Load an effector polyline, reusing storage. An empty slice unloads.
     pub fn load(&mut self, points: &[[f64; 2]]) {
-        self.start.clear();
-        self.dir.clear();
-        self.inv_len2.clear();
-        self.seg_len.clear();
-        self.acc.clear();
+        for v in [
+            &mut self.ax,
+            &mut self.ay,
+            &mut self.dx,
+            &mut self.dy,
+            &mut self.inv_len2,
+            &mut self.len,
+            &mut self.acc,
+        ] {
+            v.clear();
+        }
         self.loaded = !points.is_empty();
         if !self.loaded {
             self.length = 0.0;
             return;
         }
         let mut acc = 0.0;
-        for w in points.windows(2) {
-            let d = [w[1][0] - w[0][0], w[1][1] - w[0][1]];
+        let mut push = |t: &mut PathTrack, a: [f64; 2], d: [f64; 2]| {
             let l2 = d[0] * d[0] + d[1] * d[1];
-            let l = l2.sqrt();
-            self.start.push(w[0]);
-            self.dir.push(d);
-            self.inv_len2.push(if l2 > 0.0 { 1.0 / l2 } else { 0.0 });
-            self.seg_len.push(l);
-            self.acc.push(acc);
-            acc += l;
+            let len = l2.sqrt();
+            t.ax.push(a[0]);
+            t.ay.push(a[1]);
+            t.dx.push(d[0]);
+            t.dy.push(d[1]);
+            t.inv_len2.push(if l2 > 0.0 { 1.0 / l2 } else { 0.0 });
+            t.len.push(len);
+            t.acc.push(acc);
+            acc += len;
+        };
+        for w in points.windows(2) {
+            push(self, w[0], [w[1][0] - w[0][0], w[1][1] - w[0][1]]);
         }
         if points.len() == 1 {
             // A single point: one degenerate segment.
-            self.start.push(points[0]);
-            self.dir.push([0.0, 0.0]);
-            self.inv_len2.push(0.0);
-            self.seg_len.push(0.0);
-            self.acc.push(0.0);
+            push(self, points[0], [0.0, 0.0]);
         }
         self.end = points[points.len() - 1];
         self.length = acc;
@@ -105,32 +117,56 @@ impl PathTrack {
     }
 
     /// The closest point of the track to `p` (first segment wins ties). Track must be loaded.
+    ///
+    /// Two passes per chunk of segments: squared distances to every segment (branch-free, vectorisable),
+    /// then the first minimum; the arc length is computed for the winner only.
     #[inline]
     pub(crate) fn foot(&self, p: [f64; 2]) -> Foot {
+        let n = self.ax.len();
         let mut best_d2 = f64::INFINITY;
-        let mut best_along = 0.0;
-        for i in 0..self.start.len() {
-            let a = self.start[i];
-            let d = self.dir[i];
-            let r = [p[0] - a[0], p[1] - a[1]];
-            let t = ((r[0] * d[0] + r[1] * d[1]) * self.inv_len2[i]).clamp(0.0, 1.0);
-            let e = [r[0] - t * d[0], r[1] - t * d[1]];
-            let d2 = e[0] * e[0] + e[1] * e[1];
-            if d2 < best_d2 {
-                best_d2 = d2;
-                best_along = self.acc[i] + t * self.seg_len[i];
+        let mut best_i = 0usize;
+        let mut best_t = 0.0;
+        let mut d2 = [0.0f64; CHUNK];
+        let mut tt = [0.0f64; CHUNK];
+        let mut start = 0;
+        while start < n {
+            let m = (n - start).min(CHUNK);
+            let (ax, ay) = (&self.ax[start..start + m], &self.ay[start..start + m]);
+            let (dx, dy) = (&self.dx[start..start + m], &self.dy[start..start + m]);
+            let inv = &self.inv_len2[start..start + m];
+            let (d2c, tc) = (&mut d2[..m], &mut tt[..m]);
+            for j in 0..m {
+                let rx = p[0] - ax[j];
+                let ry = p[1] - ay[j];
+                let u = (rx * dx[j] + ry * dy[j]) * inv[j];
+                // Clamp to [0, 1] with plain comparisons (maps to min/max instructions).
+                let u = if u < 0.0 { 0.0 } else { u };
+                let t = if u > 1.0 { 1.0 } else { u };
+                let ex = rx - t * dx[j];
+                let ey = ry - t * dy[j];
+                d2c[j] = ex * ex + ey * ey;
+                tc[j] = t;
             }
+            for j in 0..m {
+                if d2c[j] < best_d2 {
+                    best_d2 = d2c[j];
+                    best_i = start + j;
+                    best_t = tc[j];
+                }
+            }
+            start += m;
         }
         Foot {
             distance: best_d2.sqrt(),
-            along: best_along,
+            along: self.acc[best_i] + best_t * self.len[best_i],
         }
     }
 
     /// Complete a foot with the goal-dependent remaining length.
     #[inline]
     pub(crate) fn point(&self, f: Foot, goal: [f64; 2]) -> PathPoint {
-        let tail = (goal[0] - self.end[0]).hypot(goal[1] - self.end[1]);
+        let (gx, gy) = (goal[0] - self.end[0], goal[1] - self.end[1]);
+        let tail = (gx * gx + gy * gy).sqrt();
         PathPoint {
             distance: f.distance,
             along: f.along,
