@@ -76,6 +76,10 @@ enum Command {
         #[arg(long, default_value_t = 0)]
         seed: u64,
     },
+    /// List the reward terms with their parameters, defaults and meaning (from the term registry).
+    ///
+    /// Each term is switched on by a `[reward.<name>]` table in the experiment file.
+    Terms,
     /// Plan a reference path in a scenario and draw it.
     ///
     /// Writes FILE.svg (workspace, obstacles, the arm at the start and at the goal configuration, the
@@ -256,6 +260,10 @@ fn main() -> ExitCode {
                 }
                 Err(e) => fail(&e, e.is_bad_input()),
             }
+        }
+        Command::Terms => {
+            print!("{}", termwise::reward::describe_terms());
+            ExitCode::SUCCESS
         }
     }
 }
