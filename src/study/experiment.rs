@@ -118,8 +118,8 @@ pub struct VariantSpec {
     pub curriculum: CurriculumSpec,
     pub learner: PpoConfig,
     pub observation: ObservationSpec,
-    /// Baseline controller settings (kind = baseline), as written.
-    pub baseline: Option<Value>,
+    /// Baseline controller settings (used when kind = baseline).
+    pub baseline: crate::control::BaselineSpec,
     /// Keys changed relative to the base.
     pub changes: Vec<Change>,
     /// Grid coordinates for grid-generated variants.
@@ -480,7 +480,9 @@ fn validate_variant(name: &str, kind: VariantKind, merged: &Table, o: &str, src:
         .map_err(|e| relabel(ConfigError::at(o, src, "learner", e.to_string())))?;
     let observation: ObservationSpec = parse_toml(&typed("observation")?, o).map_err(|e| sub("observation", e))?;
     let reward = RewardSpec::from_table(&table("reward"), o, src).map_err(relabel)?;
-    let baseline = merged.get("baseline").cloned();
+    let baseline: crate::control::BaselineSpec = parse_toml(&typed("baseline")?, o).map_err(|e| sub("baseline", e))?;
+    baseline.validate(o, src).map_err(relabel)?;
+    baseline.check_joints(sc.n(), o, src).map_err(relabel)?;
     let merged_text = toml::to_string(merged).map_err(|e| ConfigError::at(o, src, "", e.to_string()))?;
     Ok(VariantSpec {
         name: name.to_string(),

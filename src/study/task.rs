@@ -143,7 +143,7 @@ impl Episode {
             self.acc.fallbacks += path.fallback as usize;
             self.path = path;
             self.sim.mark_planned();
-            self.composer.set_path(&self.path);
+            self.composer.set_path(Some(&self.path));
         }
         let r = self.composer.step(&self.prev, &now);
         let terminal = self.composer.ends_episode(&now);
@@ -173,6 +173,11 @@ impl Episode {
         }
         self.prev = now;
         (now, r, terminal)
+    }
+
+    /// Replans so far in this episode.
+    pub fn replans(&self) -> usize {
+        self.acc.replans
     }
 
     /// Metrics of the episode so far.
