@@ -28,7 +28,7 @@ pub struct Tree {
     pub parent: Vec<usize>,
     pub cost: Vec<f64>,
     children: Vec<Vec<usize>>,
-    /// Scratch: distance of every node to the current query point.
+    /// Scratch: squared distance of every node to the current query point.
     dist: Vec<f64>,
     /// Scratch: near candidates (node, cost through it, edge length).
     near: Vec<(usize, f64, f64)>,
@@ -111,15 +111,20 @@ impl Tree {
     /// Fill the distance scratch for query `q`; return the nearest node and its distance.
     fn scan(&mut self, q: &JointVec) -> (usize, f64) {
         self.dist.clear();
+        let n = self.n;
         let mut best = (0, f64::INFINITY);
         for (i, v) in self.nodes.iter().enumerate() {
-            let d = distance(v, q, self.n);
-            self.dist.push(d);
-            if d < best.1 {
-                best = (i, d);
+            let mut d2 = 0.0;
+            for k in 0..n {
+                let t = v[k] - q[k];
+                d2 += t * t;
+            }
+            self.dist.push(d2);
+            if d2 < best.1 {
+                best = (i, d2);
             }
         }
-        best
+        (best.0, best.1.sqrt())
     }
 
     /// Steer from the nearest node toward `target` by at most `step` and insert the result (RRT* Extend).
@@ -148,13 +153,16 @@ impl Tree {
         if !space.config_free(&q_new) {
             return Inserted::Blocked;
         }
-        // Nodes within r of q_new have distance to `target` at most (d - moved) + r (triangle inequality),
-        // so the scan's distances to `target` prune the candidates without a second pass over all nodes.
+        // Nodes within r of q_new are at distance (d - moved) +- r from `target` (triangle inequality), so
+        // the scan's (squared) distances to `target` prune the candidates without a second full pass.
         let r = self.radius();
-        let bound = d - moved + r + 1e-12;
+        let hi = d - moved + r + 1e-12;
+        let lo = (d - moved - r - 1e-12).max(0.0);
+        let (hi2, lo2) = (hi * hi, lo * lo);
         self.near.clear();
         for i in 0..self.nodes.len() {
-            if self.dist[i] <= bound || i == nearest {
+            let d2 = self.dist[i];
+            if (d2 <= hi2 && d2 >= lo2) || i == nearest {
                 let e = distance(&self.nodes[i], &q_new, self.n);
                 if e <= r || i == nearest {
                     self.near.push((i, self.cost[i] + e, e));
@@ -166,12 +174,12 @@ impl Tree {
 
     fn nearest_from_scratch(&self) -> (usize, f64) {
         let mut best = (0, f64::INFINITY);
-        for (i, &d) in self.dist.iter().enumerate() {
-            if d < best.1 {
-                best = (i, d);
+        for (i, &d2) in self.dist.iter().enumerate() {
+            if d2 < best.1 {
+                best = (i, d2);
             }
         }
-        best
+        (best.0, best.1.sqrt())
     }
 
     /// Choose the cheapest collision-free parent among `self.near` (candidates checked in order of cost, so
