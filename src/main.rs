@@ -76,6 +76,40 @@ enum Command {
         #[arg(long, default_value_t = 0)]
         seed: u64,
     },
+    /// Replay a checkpoint (or the classical tracking controller) on a study's evaluation episodes:
+    /// an animated GIF with a caption of time, return and each reward term's running sum, an optional
+    /// filmstrip PNG, and per-episode trajectory metrics.
+    Replay {
+        /// Checkpoint (policy.safetensors with its policy.json sidecar) to replay.
+        checkpoint: Option<PathBuf>,
+        /// Replay the classical tracking controller instead of a checkpoint.
+        #[arg(long)]
+        baseline: bool,
+        /// Experiment file whose variant settings (reward, planner, observation, baseline) apply.
+        #[arg(long)]
+        experiment: PathBuf,
+        /// Variant of the experiment (default: the first).
+        #[arg(long)]
+        variant: Option<String>,
+        /// Scenario file replacing the variant's scenario.
+        #[arg(long)]
+        scenario: Option<PathBuf>,
+        /// Seed of the evaluation episodes (default: the study's eval_seed, i.e. the episodes evaluated in training).
+        #[arg(long)]
+        seed: Option<u64>,
+        /// Animated GIF of the first episode.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Filmstrip PNG (a grid of 12 frames) of the same episode.
+        #[arg(long)]
+        filmstrip: Option<PathBuf>,
+        /// Roll out this many episodes and write their metrics CSV.
+        #[arg(long)]
+        episodes: Option<usize>,
+        /// Where to write the per-episode metrics CSV (default replay-episodes.csv).
+        #[arg(long)]
+        metrics_out: Option<PathBuf>,
+    },
     /// List the reward terms with their parameters, defaults and meaning (from the term registry).
     ///
     /// Each term is switched on by a `[reward.<name>]` table in the experiment file.
@@ -113,7 +147,9 @@ enum Command {
 }
 
 fn cores() -> usize {
-    std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1)
+    std::thread::available_parallelism()
+        .map(|n| n.get())
+        .unwrap_or(1)
 }
 
 /// Parse `X,Y` into a point.
@@ -183,7 +219,14 @@ fn main() -> ExitCode {
                 eprintln!("termwise: stopping after the current iteration (runs are marked interrupted)...");
                 flag.store(true, std::sync::atomic::Ordering::SeqCst);
             });
-            match termwise::study::cli_run(&experiment, jobs.unwrap_or_else(cores), out, cell, !no_report, &stop) {
+            match termwise::study::cli_run(
+                &experiment,
+                jobs.unwrap_or_else(cores),
+                out,
+                cell,
+                !no_report,
+                &stop,
+            ) {
                 Ok(text) => {
                     println!("{text}");
                     ExitCode::SUCCESS
@@ -199,8 +242,9 @@ fn main() -> ExitCode {
             termwise::learn::pin_kernel_threads();
             match termwise::study::experiment::load(&experiment)
                 .map_err(termwise::study::StudyError::from)
-                .and_then(|exp| termwise::study::check_text(&exp, jobs.unwrap_or_else(cores), !no_calibrate))
-            {
+                .and_then(|exp| {
+                    termwise::study::check_text(&exp, jobs.unwrap_or_else(cores), !no_calibrate)
+                }) {
                 Ok(text) => {
                     print!("{text}");
                     ExitCode::SUCCESS
@@ -256,6 +300,38 @@ fn main() -> ExitCode {
                         o.csv.display(),
                         o.png.map(|p| format!(" and {}", p.display())).unwrap_or_default()
                     );
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(&e, e.is_bad_input()),
+            }
+        }
+        Command::Replay {
+            checkpoint,
+            baseline,
+            experiment,
+            variant,
+            scenario,
+            seed,
+            out,
+            filmstrip,
+            episodes,
+            metrics_out,
+        } => {
+            let args = termwise::replay::ReplayArgs {
+                experiment,
+                variant,
+                checkpoint,
+                baseline,
+                scenario,
+                seed,
+                out,
+                filmstrip,
+                episodes,
+                metrics_out,
+            };
+            match termwise::replay::run_replay(&args) {
+                Ok(text) => {
+                    eprintln!("{text}");
                     ExitCode::SUCCESS
                 }
                 Err(e) => fail(&e, e.is_bad_input()),
