@@ -388,7 +388,9 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
     base.insert("reward".into(), Value::Table(raw.reward.clone()));
 
     // Variant override tables, explicit then generated.
-    let mut overrides: Vec<(String, Table, String, Option<BTreeMap<String, f64>>)> = Vec::new();
+    // (name, override table, where it came from, grid point)
+    type Override = (String, Table, String, Option<BTreeMap<String, f64>>);
+    let mut overrides: Vec<Override> = Vec::new();
     for (i, v) in raw.variant.iter().enumerate() {
         let mut v = v.clone();
         let name = match v.remove("name") {

@@ -324,12 +324,15 @@ pub fn eval_draw(ep: &mut Episode, eval_seed: u64, j: u64) -> (EpisodeDraw, ChaC
     (d, rng)
 }
 
+/// A deterministic controller: `act(episode, obs, action_out)` writes normalised actions.
+pub type Actor<'a> = dyn FnMut(&Episode, &[f32], &mut [f32]) + 'a;
+
 /// Run one evaluation episode with a deterministic controller `act(obs, action_out)`.
 pub fn run_episode(
     ep: &mut Episode,
     draw: &EpisodeDraw,
     rng: &mut ChaCha8Rng,
-    act: &mut dyn FnMut(&Episode, &[f32], &mut [f32]),
+    act: &mut Actor<'_>,
 ) -> EpisodeMetrics {
     ep.begin(draw, rng);
     let mut obs = vec![0f32; ep.obs_dim()];
