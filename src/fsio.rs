@@ -3,6 +3,7 @@
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
 
 /// Write `bytes` to `path` atomically (temp file in the same folder, fsync, rename).
 /// Parent folders are created when missing.
@@ -22,16 +23,38 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
     })
 }
 
-/// The temporary name used while `path` is being written: `.<name>.tmp-<pid>` beside it.
+/// The temporary name used while `path` is being written: `.<name>.tmp-<host>-<pid>-<n>` beside it. Host, process
+/// id and a per-process counter keep concurrent writers of the same file apart — threads of one process, and
+/// processes on different nodes of a cluster sharing the results folder (their process ids may coincide).
 pub fn temp_sibling(path: &Path) -> PathBuf {
+    static COUNTER: AtomicU64 = AtomicU64::new(0);
     let name = path
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "out".into());
-    let tmp_name = format!(".{name}.tmp-{}", std::process::id());
+    let n = COUNTER.fetch_add(1, Ordering::Relaxed);
+    let tmp_name = format!(".{name}.tmp-{}-{}-{n}", host_tag(), std::process::id());
     match path.parent() {
         Some(p) => p.join(tmp_name),
         None => PathBuf::from(tmp_name),
+    }
+}
+
+/// This machine's host name (letters, digits and `-` only), or `host` when it cannot be read.
+fn host_tag() -> String {
+    let raw = std::fs::read_to_string("/proc/sys/kernel/hostname")
+        .or_else(|_| std::env::var("HOSTNAME"))
+        .unwrap_or_default();
+    let tag: String = raw
+        .trim()
+        .chars()
+        .filter(|c| c.is_ascii_alphanumeric() || *c == '-')
+        .take(32)
+        .collect();
+    if tag.is_empty() {
+        "host".into()
+    } else {
+        tag
     }
 }
 
@@ -52,6 +75,58 @@ mod tests {
             .filter(|e| e.file_name().to_string_lossy().contains(".tmp-"))
             .collect();
         assert!(leftovers.is_empty());
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
+    fn concurrent_writers_of_one_file_never_leave_it_partial() {
+        // Many writers replace the same file at once (as array tasks do with study.json) while a reader
+        // checks that every read is one whole version: rename(2) replaces a name atomically (POSIX.1-2017,
+        // rename(), "the link named new shall remain visible to other processes throughout").
+        let dir = std::env::temp_dir().join(format!("termwise-fsio-conc-{}", std::process::id()));
+        let p = dir.join("study.json");
+        let body = |w: usize| {
+            format!(
+                "{{\"writer\": {w}, \"pad\": \"{}\"}}",
+                "x".repeat(20_000 + w)
+            )
+        };
+        write_atomic(&p, body(0).as_bytes()).unwrap();
+        let stop = std::sync::atomic::AtomicBool::new(false);
+        std::thread::scope(|s| {
+            let writers: Vec<_> = (1..=6)
+                .map(|w| {
+                    let p = &p;
+                    s.spawn(move || {
+                        for _ in 0..40 {
+                            write_atomic(p, body(w).as_bytes()).unwrap();
+                        }
+                    })
+                })
+                .collect();
+            let reader = s.spawn(|| {
+                let mut reads = 0;
+                while !stop.load(Ordering::SeqCst) {
+                    let text = std::fs::read_to_string(&p).unwrap();
+                    let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+                    let w = v["writer"].as_u64().unwrap() as usize;
+                    assert_eq!(text, body(w));
+                    reads += 1;
+                }
+                reads
+            });
+            for w in writers {
+                w.join().unwrap();
+            }
+            stop.store(true, Ordering::SeqCst);
+            assert!(reader.join().unwrap() > 0);
+        });
+        let leftovers = std::fs::read_dir(&dir)
+            .unwrap()
+            .filter_map(|e| e.ok())
+            .filter(|e| e.file_name().to_string_lossy().contains(".tmp-"))
+            .count();
+        assert_eq!(leftovers, 0);
         std::fs::remove_dir_all(&dir).unwrap();
     }
 }

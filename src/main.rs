@@ -110,6 +110,41 @@ enum Command {
         #[arg(long)]
         metrics_out: Option<PathBuf>,
     },
+    /// Write Slurm batch scripts for a study into its results folder: a job array with one task per run
+    /// (`run --cell $SLURM_ARRAY_TASK_ID`), a report job that runs after the array, and submit.sh that
+    /// queues both (`bash DIR/slurm/submit.sh`). Logs go to DIR/slurm/logs/.
+    Slurm {
+        /// Experiment TOML file.
+        experiment: PathBuf,
+        /// Results folder shared by all tasks (must be on a file system every node sees).
+        /// Default: results/<study name>.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Partition (queue) for the jobs. Default: the cluster's default.
+        #[arg(long)]
+        partition: Option<String>,
+        /// Time limit of one run, [D-]HH:MM:SS. Default: 04:00:00.
+        #[arg(long)]
+        time: Option<String>,
+        /// Memory of one run (sbatch --mem), e.g. 1500M. Default: 2G.
+        #[arg(long)]
+        mem: Option<String>,
+        /// Most runs at once (the %K of the array). Default: all.
+        #[arg(long)]
+        max_parallel: Option<usize>,
+        /// Account charged for the jobs. Default: your default account.
+        #[arg(long)]
+        account: Option<String>,
+    },
+    /// Show how far a study has got: runs done, running, stale (heartbeat stopped), diverged,
+    /// interrupted or missing, and which cells to run again.
+    Status {
+        /// Results folder (the one holding study.json).
+        results_dir: PathBuf,
+        /// Seconds without a heartbeat after which a running run counts as stale (dead).
+        #[arg(long, default_value_t = termwise::study::status::DEFAULT_STALE_AFTER_S)]
+        stale_after: u64,
+    },
     /// List the reward terms with their parameters, defaults and meaning (from the term registry).
     ///
     /// Each term is switched on by a `[reward.<name>]` table in the experiment file.
@@ -337,6 +372,42 @@ fn main() -> ExitCode {
                 Err(e) => fail(&e, e.is_bad_input()),
             }
         }
+        Command::Slurm {
+            experiment,
+            out,
+            partition,
+            time,
+            mem,
+            max_parallel,
+            account,
+        } => {
+            let d = termwise::study::slurm::SlurmSpec::default();
+            let spec = termwise::study::slurm::SlurmSpec {
+                partition,
+                time: time.unwrap_or(d.time),
+                mem: mem.unwrap_or(d.mem),
+                max_parallel,
+                account,
+                report_time: d.report_time,
+            };
+            match termwise::study::slurm::cli_slurm(&experiment, out, &spec) {
+                Ok(text) => {
+                    println!("{text}");
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(&e, e.is_bad_input()),
+            }
+        }
+        Command::Status {
+            results_dir,
+            stale_after,
+        } => match termwise::study::status::cli_status(&results_dir, stale_after) {
+            Ok(text) => {
+                print!("{text}");
+                ExitCode::SUCCESS
+            }
+            Err(e) => fail(&e, e.is_bad_input()),
+        },
         Command::Terms => {
             print!("{}", termwise::reward::describe_terms());
             ExitCode::SUCCESS

@@ -4,6 +4,8 @@
 pub mod experiment;
 pub mod layout;
 pub mod run;
+pub mod slurm;
+pub mod status;
 pub mod task;
 
 pub use experiment::{Experiment, VariantKind, VariantSpec};
@@ -40,6 +42,8 @@ pub enum StudyError {
     NoSuchCell { cell: usize, runs: usize },
     #[error("run failed: {0}")]
     Run(String),
+    #[error("{0}")]
+    Slurm(#[from] slurm::SlurmError),
 }
 
 impl StudyError {
@@ -50,6 +54,7 @@ impl StudyError {
             StudyError::Config(_)
                 | StudyError::ChangedConfig { .. }
                 | StudyError::NoSuchCell { .. }
+                | StudyError::Slurm(_)
         )
     }
 }

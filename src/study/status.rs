@@ -1,0 +1,264 @@
+//! `termwise status`: how far a study has got, read from its results folder alone — runs done, running,
+//! stale (a `running` run whose heartbeat stopped: its process died), diverged, interrupted or missing.
+
+use super::layout::{read_run_json, RunStatus, StudyRecord};
+use super::StudyError;
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+/// Seconds without a heartbeat after which a `running` run is reported as stale. Default of `--stale-after`.
+pub const DEFAULT_STALE_AFTER_S: u64 = 600;
+
+/// Where one planned run stands.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum CellState {
+    Done,
+    /// `running` with a recent heartbeat.
+    Running,
+    /// `running` but the heartbeat is older than the stale limit: the process is gone.
+    Stale,
+    Diverged,
+    Interrupted,
+    /// Planned in study.json but without a (readable) run.json.
+    Missing,
+}
+
+impl CellState {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            CellState::Done => "done",
+            CellState::Running => "running",
+            CellState::Stale => "stale",
+            CellState::Diverged => "diverged",
+            CellState::Interrupted => "interrupted",
+            CellState::Missing => "missing",
+        }
+    }
+    /// True when running the cell again is needed to finish the study.
+    pub fn needs_rerun(self) -> bool {
+        matches!(
+            self,
+            CellState::Stale | CellState::Interrupted | CellState::Missing
+        )
+    }
+}
+
+/// One planned run and its state.
+#[derive(Clone, Debug)]
+pub struct CellStatus {
+    /// Position in the plan (the `--cell` index and the array task id).
+    pub cell: usize,
+    pub variant: String,
+    pub seed: u64,
+    pub state: CellState,
+    /// Environment steps reached (0 when missing).
+    pub env_steps: u64,
+    /// Seconds since the last heartbeat (`None` when missing).
+    pub heartbeat_age_s: Option<u64>,
+}
+
+/// The state of every planned run of a study.
+#[derive(Clone, Debug)]
+pub struct StudyStatus {
+    pub dir: PathBuf,
+    pub name: String,
+    pub budget_steps: u64,
+    pub cells: Vec<CellStatus>,
+}
+
+impl StudyStatus {
+    pub fn count(&self, s: CellState) -> usize {
+        self.cells.iter().filter(|c| c.state == s).count()
+    }
+    /// The cells that must run again to finish the study.
+    pub fn to_rerun(&self) -> Vec<usize> {
+        self.cells
+            .iter()
+            .filter(|c| c.state.needs_rerun())
+            .map(|c| c.cell)
+            .collect()
+    }
+}
+
+/// Classify one run.json (or its absence) at time `now_unix`.
+pub fn classify(status: Option<(RunStatus, u64)>, now_unix: u64, stale_after_s: u64) -> CellState {
+    match status {
+        None => CellState::Missing,
+        Some((RunStatus::Done, _)) => CellState::Done,
+        Some((RunStatus::Diverged, _)) => CellState::Diverged,
+        Some((RunStatus::Interrupted, _)) => CellState::Interrupted,
+        Some((RunStatus::Running, beat)) if now_unix.saturating_sub(beat) > stale_after_s => {
+            CellState::Stale
+        }
+        Some((RunStatus::Running, _)) => CellState::Running,
+    }
+}
+
+/// Read study.json and every planned run.json under `dir`. The plan is the one `termwise run` uses:
+/// variant-major, all seeds of a learned variant, seed 0 only of a baseline.
+pub fn study_status(
+    dir: &Path,
+    now_unix: u64,
+    stale_after_s: u64,
+) -> Result<StudyStatus, StudyError> {
+    let p = dir.join("study.json");
+    let text = std::fs::read_to_string(&p).map_err(|source| StudyError::Io {
+        path: p.clone(),
+        source,
+    })?;
+    let rec: StudyRecord = serde_json::from_str(&text)
+        .map_err(|e| StudyError::Run(format!("{}: {e}", p.display())))?;
+    let mut cells = Vec::new();
+    for v in &rec.variants {
+        let seeds: Vec<u64> = if v.kind == "baseline" {
+            vec![0]
+        } else {
+            rec.seeds.clone()
+        };
+        for seed in seeds {
+            let run = read_run_json(&dir.join(&v.name).join(format!("seed-{seed}")));
+            let state = classify(
+                run.as_ref().map(|r| (r.status, r.heartbeat_unix)),
+                now_unix,
+                stale_after_s,
+            );
+            cells.push(CellStatus {
+                cell: cells.len(),
+                variant: v.name.clone(),
+                seed,
+                state,
+                env_steps: run.as_ref().map_or(0, |r| r.env_steps),
+                heartbeat_age_s: run.map(|r| now_unix.saturating_sub(r.heartbeat_unix)),
+            });
+        }
+    }
+    Ok(StudyStatus {
+        dir: dir.to_path_buf(),
+        name: rec.name,
+        budget_steps: rec.budget_steps,
+        cells,
+    })
+}
+
+/// Cell indices as a compact list for `sbatch --array` (e.g. `0-2,5,7-8`).
+pub fn cell_ranges(cells: &[usize]) -> String {
+    let mut parts = Vec::new();
+    let mut i = 0;
+    while i < cells.len() {
+        let start = cells[i];
+        let mut end = start;
+        while i + 1 < cells.len() && cells[i + 1] == end + 1 {
+            i += 1;
+            end = cells[i];
+        }
+        parts.push(if start == end {
+            start.to_string()
+        } else {
+            format!("{start}-{end}")
+        });
+        i += 1;
+    }
+    parts.join(",")
+}
+
+/// The status as text: one line of counts, then every run that is not done.
+pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
+    let mut s = String::new();
+    let states = [
+        CellState::Done,
+        CellState::Running,
+        CellState::Stale,
+        CellState::Diverged,
+        CellState::Interrupted,
+        CellState::Missing,
+    ];
+    let counts: Vec<String> = states
+        .iter()
+        .map(|&c| format!("{} {}", st.count(c), c.as_str()))
+        .collect();
+    let _ = writeln!(
+        s,
+        "study `{}` in {}: {} runs planned",
+        st.name,
+        st.dir.display(),
+        st.cells.len()
+    );
+    let _ = writeln!(s, "  {}", counts.join(", "));
+    for c in st.cells.iter().filter(|c| c.state != CellState::Done) {
+        let age = c
+            .heartbeat_age_s
+            .map(|a| format!(", last heartbeat {a} s ago"))
+            .unwrap_or_default();
+        let _ = writeln!(
+            s,
+            "  cell {:>3}: {} seed {}: {} ({} of {} steps{})",
+            c.cell,
+            c.variant,
+            c.seed,
+            c.state.as_str(),
+            c.env_steps,
+            st.budget_steps,
+            age
+        );
+    }
+    if st.count(CellState::Stale) > 0 {
+        let _ = writeln!(s, "  (stale: `running` but no heartbeat for more than {stale_after_s} s, so its process has died)");
+    }
+    let rerun = st.to_rerun();
+    if !rerun.is_empty() {
+        let _ = writeln!(
+            s,
+            "to finish: run these cells again, e.g. `sbatch --array={} {}`",
+            cell_ranges(&rerun),
+            st.dir.join("slurm").join("cells.sbatch").display()
+        );
+    }
+    s
+}
+
+/// The whole `termwise status` command.
+pub fn cli_status(dir: &Path, stale_after_s: u64) -> Result<String, StudyError> {
+    let now = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|d| d.as_secs())
+        .unwrap_or(0);
+    Ok(status_text(
+        &study_status(dir, now, stale_after_s)?,
+        stale_after_s,
+    ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn stale_only_after_the_limit() {
+        let now = 10_000;
+        assert_eq!(
+            classify(Some((RunStatus::Running, now - 600)), now, 600),
+            CellState::Running
+        );
+        assert_eq!(
+            classify(Some((RunStatus::Running, now - 601)), now, 600),
+            CellState::Stale
+        );
+        // A heartbeat from the future (clock skew between nodes) is not stale.
+        assert_eq!(
+            classify(Some((RunStatus::Running, now + 50)), now, 600),
+            CellState::Running
+        );
+        assert_eq!(
+            classify(Some((RunStatus::Done, 0)), now, 600),
+            CellState::Done
+        );
+        assert_eq!(classify(None, now, 600), CellState::Missing);
+    }
+
+    #[test]
+    fn ranges_are_compact() {
+        assert_eq!(cell_ranges(&[0, 1, 2, 5, 7, 8]), "0-2,5,7-8");
+        assert_eq!(cell_ranges(&[3]), "3");
+        assert_eq!(cell_ranges(&[]), "");
+    }
+}
