@@ -113,7 +113,9 @@ enum Command {
 }
 
 fn cores() -> usize {
-    std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1)
+    std::thread::available_parallelism()
+        .map(|n| n.get())
+        .unwrap_or(1)
 }
 
 /// Parse `X,Y` into a point.
@@ -183,7 +185,14 @@ fn main() -> ExitCode {
                 eprintln!("termwise: stopping after the current iteration (runs are marked interrupted)...");
                 flag.store(true, std::sync::atomic::Ordering::SeqCst);
             });
-            match termwise::study::cli_run(&experiment, jobs.unwrap_or_else(cores), out, cell, !no_report, &stop) {
+            match termwise::study::cli_run(
+                &experiment,
+                jobs.unwrap_or_else(cores),
+                out,
+                cell,
+                !no_report,
+                &stop,
+            ) {
                 Ok(text) => {
                     println!("{text}");
                     ExitCode::SUCCESS
@@ -199,8 +208,9 @@ fn main() -> ExitCode {
             termwise::learn::pin_kernel_threads();
             match termwise::study::experiment::load(&experiment)
                 .map_err(termwise::study::StudyError::from)
-                .and_then(|exp| termwise::study::check_text(&exp, jobs.unwrap_or_else(cores), !no_calibrate))
-            {
+                .and_then(|exp| {
+                    termwise::study::check_text(&exp, jobs.unwrap_or_else(cores), !no_calibrate)
+                }) {
                 Ok(text) => {
                     print!("{text}");
                     ExitCode::SUCCESS

@@ -17,7 +17,11 @@ pub struct AlongPath {
 impl AlongPath {
     /// `p0`: probability at step 0; `decay_steps`: steps to decay linearly to 0 (0 = constant).
     pub fn new(p0: f64, decay_steps: u64) -> Self {
-        AlongPath { p0, decay_steps, last_steps: 0 }
+        AlongPath {
+            p0,
+            decay_steps,
+            last_steps: 0,
+        }
     }
 
     /// The probability of a path start after `env_steps` steps.

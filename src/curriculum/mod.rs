@@ -72,7 +72,10 @@ pub struct SuccessWindow {
 
 impl SuccessWindow {
     pub fn new(window: usize) -> Self {
-        SuccessWindow { window: window.max(1), recent: VecDeque::with_capacity(window.max(1)) }
+        SuccessWindow {
+            window: window.max(1),
+            recent: VecDeque::with_capacity(window.max(1)),
+        }
     }
     pub fn push(&mut self, success: bool) {
         if self.recent.len() == self.window {
@@ -202,12 +205,25 @@ impl CurriculumSpec {
     /// Check the kind and its parameters; `prefix` is the key path of the table (e.g. `curriculum`).
     pub fn validate(&self, origin: &str, src: &str, prefix: &str) -> Result<(), ConfigError> {
         let err = |k: &str, m: String| ConfigError::at(origin, src, &format!("{prefix}.{k}"), m);
-        let info = REGISTRY.iter().find(|c| c.name == self.kind).ok_or_else(|| {
-            let names: Vec<_> = REGISTRY.iter().map(|c| c.name).collect();
-            err("kind", format!("unknown curriculum `{}`; known: {}", self.kind, names.join(", ")))
-        })?;
+        let info = REGISTRY
+            .iter()
+            .find(|c| c.name == self.kind)
+            .ok_or_else(|| {
+                let names: Vec<_> = REGISTRY.iter().map(|c| c.name).collect();
+                err(
+                    "kind",
+                    format!(
+                        "unknown curriculum `{}`; known: {}",
+                        self.kind,
+                        names.join(", ")
+                    ),
+                )
+            })?;
         let given: [(&str, bool); 8] = [
-            ("path_start_probability", self.path_start_probability.is_some()),
+            (
+                "path_start_probability",
+                self.path_start_probability.is_some(),
+            ),
             ("decay_steps", self.decay_steps.is_some()),
             ("start_radius", self.start_radius.is_some()),
             ("radius_step", self.radius_step.is_some()),
@@ -224,29 +240,45 @@ impl CurriculumSpec {
                     format!(
                         "does not apply to curriculum `{}` (its keys: {})",
                         self.kind,
-                        if allowed.is_empty() { "none".to_string() } else { allowed.join(", ") }
+                        if allowed.is_empty() {
+                            "none".to_string()
+                        } else {
+                            allowed.join(", ")
+                        }
                     ),
                 ));
             }
         }
         let unit = |k: &str, v: Option<f64>| -> Result<(), ConfigError> {
             match v {
-                Some(x) if !(0.0..=1.0).contains(&x) || x.is_nan() => Err(err(k, format!("must be in [0, 1], got {x}"))),
+                Some(x) if !(0.0..=1.0).contains(&x) || x.is_nan() => {
+                    Err(err(k, format!("must be in [0, 1], got {x}")))
+                }
                 _ => Ok(()),
             }
         };
         unit("path_start_probability", self.path_start_probability)?;
         unit("success_threshold", self.success_threshold)?;
-        for (k, v) in [("start_radius", self.start_radius), ("radius_step", self.radius_step), ("max_radius", self.max_radius)] {
+        for (k, v) in [
+            ("start_radius", self.start_radius),
+            ("radius_step", self.radius_step),
+            ("max_radius", self.max_radius),
+        ] {
             if let Some(x) = v {
                 if !(x.is_finite() && x > 0.0) {
-                    return Err(err(k, format!("must be a finite number > 0 (rad), got {x}")));
+                    return Err(err(
+                        k,
+                        format!("must be a finite number > 0 (rad), got {x}"),
+                    ));
                 }
             }
         }
         if let (Some(a), Some(b)) = (self.start_radius, self.max_radius) {
             if a > b {
-                return Err(err("start_radius", format!("start_radius ({a}) must be <= max_radius ({b})")));
+                return Err(err(
+                    "start_radius",
+                    format!("start_radius ({a}) must be <= max_radius ({b})"),
+                ));
             }
         }
         if self.window == Some(0) {
@@ -258,10 +290,16 @@ impl CurriculumSpec {
             }
             for (i, s) in stages.iter().enumerate() {
                 if !(s.goal_distance.is_finite() && s.goal_distance > 0.0) {
-                    return Err(err(&format!("stages[{i}].goal_distance"), format!("must be > 0 m, got {}", s.goal_distance)));
+                    return Err(err(
+                        &format!("stages[{i}].goal_distance"),
+                        format!("must be > 0 m, got {}", s.goal_distance),
+                    ));
                 }
                 if !(s.jump_rate.is_finite() && s.jump_rate >= 0.0) {
-                    return Err(err(&format!("stages[{i}].jump_rate"), format!("must be >= 0 per second, got {}", s.jump_rate)));
+                    return Err(err(
+                        &format!("stages[{i}].jump_rate"),
+                        format!("must be >= 0 per second, got {}", s.jump_rate),
+                    ));
                 }
             }
         }
@@ -270,7 +308,10 @@ impl CurriculumSpec {
 
     /// Build the curriculum (call `validate` first).
     pub fn build(&self) -> Box<dyn Curriculum> {
-        let info = REGISTRY.iter().find(|c| c.name == self.kind).expect("validated curriculum kind");
+        let info = REGISTRY
+            .iter()
+            .find(|c| c.name == self.kind)
+            .expect("validated curriculum kind");
         (info.build)(self)
     }
 }
@@ -281,15 +322,42 @@ mod tests {
 
     #[test]
     fn validation_rejects_foreign_and_bad_keys() {
-        let mut s = CurriculumSpec { kind: "uniform".into(), start_radius: Some(0.5), ..Default::default() };
-        let e = s.validate("x.toml", "", "curriculum").unwrap_err().to_string();
-        assert!(e.contains("curriculum.start_radius") && e.contains("does not apply"), "{e}");
-        s = CurriculumSpec { kind: "backwards".into(), ..Default::default() };
-        let e = s.validate("x.toml", "", "curriculum").unwrap_err().to_string();
-        assert!(e.contains("known: uniform, along-path, reverse, staged"), "{e}");
-        s = CurriculumSpec { kind: "along-path".into(), path_start_probability: Some(1.5), ..Default::default() };
+        let mut s = CurriculumSpec {
+            kind: "uniform".into(),
+            start_radius: Some(0.5),
+            ..Default::default()
+        };
+        let e = s
+            .validate("x.toml", "", "curriculum")
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("curriculum.start_radius") && e.contains("does not apply"),
+            "{e}"
+        );
+        s = CurriculumSpec {
+            kind: "backwards".into(),
+            ..Default::default()
+        };
+        let e = s
+            .validate("x.toml", "", "curriculum")
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("known: uniform, along-path, reverse, staged"),
+            "{e}"
+        );
+        s = CurriculumSpec {
+            kind: "along-path".into(),
+            path_start_probability: Some(1.5),
+            ..Default::default()
+        };
         assert!(s.validate("x.toml", "", "curriculum").is_err());
-        s = CurriculumSpec { kind: "reverse".into(), start_radius: Some(0.2), ..Default::default() };
+        s = CurriculumSpec {
+            kind: "reverse".into(),
+            start_radius: Some(0.2),
+            ..Default::default()
+        };
         assert!(s.validate("x.toml", "", "curriculum").is_ok());
     }
 

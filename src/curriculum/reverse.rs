@@ -20,7 +20,13 @@ pub struct Reverse {
 }
 
 impl Reverse {
-    pub fn new(start_radius: f64, radius_step: f64, max_radius: f64, threshold: f64, window: usize) -> Self {
+    pub fn new(
+        start_radius: f64,
+        radius_step: f64,
+        max_radius: f64,
+        threshold: f64,
+        window: usize,
+    ) -> Self {
         Reverse {
             radius: start_radius,
             r0: start_radius,

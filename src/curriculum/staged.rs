@@ -30,15 +30,32 @@ pub struct Staged {
 
 impl Staged {
     pub fn new(stages: Vec<Stage>, threshold: f64, window: usize) -> Self {
-        Staged { stages, current: 0, threshold, recent: SuccessWindow::new(window) }
+        Staged {
+            stages,
+            current: 0,
+            threshold,
+            recent: SuccessWindow::new(window),
+        }
     }
 
     /// Three stages: near goals without obstacles, mid-range goals with two obstacles, the full task.
     pub fn default_stages() -> Vec<Stage> {
         vec![
-            Stage { obstacles: 0, goal_distance: 0.25, jump_rate: 0.0 },
-            Stage { obstacles: 2, goal_distance: 0.5, jump_rate: 0.0 },
-            Stage { obstacles: usize::MAX, goal_distance: 100.0, jump_rate: 0.0 },
+            Stage {
+                obstacles: 0,
+                goal_distance: 0.25,
+                jump_rate: 0.0,
+            },
+            Stage {
+                obstacles: 2,
+                goal_distance: 0.5,
+                jump_rate: 0.0,
+            },
+            Stage {
+                obstacles: usize::MAX,
+                goal_distance: 100.0,
+                jump_rate: 0.0,
+            },
         ]
     }
 
@@ -65,7 +82,13 @@ impl Curriculum for Staged {
             }
             goal = env.sample_goal(rng);
         }
-        EpisodeDraw { start, goal, obstacles, jump_rate: st.jump_rate, start_on_path: false }
+        EpisodeDraw {
+            start,
+            goal,
+            obstacles,
+            jump_rate: st.jump_rate,
+            start_on_path: false,
+        }
     }
 
     fn feedback(&mut self, success: bool, _env_steps: u64) {

@@ -145,7 +145,10 @@ impl Experiment {
     }
     /// Environment steps between evaluations.
     pub fn eval_every(&self) -> u64 {
-        self.study.eval_every.map(|v| v as u64).unwrap_or((self.study.budget as u64 / 10).max(1))
+        self.study
+            .eval_every
+            .map(|v| v as u64)
+            .unwrap_or((self.study.budget as u64 / 10).max(1))
     }
     /// Index of the reference variant.
     pub fn reference_index(&self) -> usize {
@@ -158,14 +161,23 @@ impl Experiment {
 }
 
 /// Sections of the base a variant may override.
-const VARIANT_SECTIONS: &[&str] = &["scenario", "plan", "reward", "curriculum", "learner", "observation", "baseline"];
+const VARIANT_SECTIONS: &[&str] = &[
+    "scenario",
+    "plan",
+    "reward",
+    "curriculum",
+    "learner",
+    "observation",
+    "baseline",
+];
 
 /// A name usable as a folder name on every common filesystem.
 pub fn safe_name(s: &str) -> bool {
     !s.is_empty()
         && s.len() <= 100
         && !s.starts_with('.')
-        && s.chars().all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.' | '='))
+        && s.chars()
+            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.' | '='))
 }
 
 /// Deep-merge `over` into `base`: tables merge key by key, everything else replaces.
@@ -183,7 +195,11 @@ pub fn deep_merge(base: &mut Table, over: &Table) {
 /// Flatten a table to dotted keys (arrays of tables keep their index: `obstacle[1].radius`).
 pub fn flatten(t: &Table, prefix: &str, out: &mut BTreeMap<String, String>) {
     for (k, v) in t {
-        let key = if prefix.is_empty() { k.clone() } else { format!("{prefix}.{k}") };
+        let key = if prefix.is_empty() {
+            k.clone()
+        } else {
+            format!("{prefix}.{k}")
+        };
         match v {
             Value::Table(sub) => flatten(sub, &key, out),
             Value::Array(a) if !a.is_empty() && a.iter().all(|x| x.is_table()) => {
@@ -217,7 +233,11 @@ fn diff(base: &Table, merged: &Table) -> Vec<Change> {
     }
     for (k, v) in &a {
         if !b.contains_key(k) {
-            out.push(Change { key: k.clone(), base: v.clone(), value: "(unset)".into() });
+            out.push(Change {
+                key: k.clone(),
+                base: v.clone(),
+                value: "(unset)".into(),
+            });
         }
     }
     out
@@ -232,7 +252,9 @@ fn set_dotted(t: &mut Table, key: &str, v: Value) {
             cur.insert(p.to_string(), v);
             return;
         }
-        let entry = cur.entry(p.to_string()).or_insert_with(|| Value::Table(Table::new()));
+        let entry = cur
+            .entry(p.to_string())
+            .or_insert_with(|| Value::Table(Table::new()));
         if !entry.is_table() {
             *entry = Value::Table(Table::new());
         }
@@ -282,27 +304,54 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
     let err = |p: &str, m: String| ConfigError::at(o, src, p, m);
     let st = &raw.study;
     if !safe_name(&st.name) {
-        return Err(err("study.name", format!("`{}` is not safe as a folder name; use letters, digits, -, _ or .", st.name)));
+        return Err(err(
+            "study.name",
+            format!(
+                "`{}` is not safe as a folder name; use letters, digits, -, _ or .",
+                st.name
+            ),
+        ));
     }
     if st.seeds < 1 {
-        return Err(err("study.seeds", format!("needs at least 1 seed, got {}", st.seeds)));
+        return Err(err(
+            "study.seeds",
+            format!("needs at least 1 seed, got {}", st.seeds),
+        ));
     }
     if st.budget < 1 {
-        return Err(err("study.budget", format!("must be a positive number of environment steps, got {}", st.budget)));
+        return Err(err(
+            "study.budget",
+            format!(
+                "must be a positive number of environment steps, got {}",
+                st.budget
+            ),
+        ));
     }
     if let Some(e) = st.eval_every {
         if e < 1 || e > st.budget {
-            return Err(err("study.eval_every", format!("must be in 1..=budget ({}), got {e}", st.budget)));
+            return Err(err(
+                "study.eval_every",
+                format!("must be in 1..=budget ({}), got {e}", st.budget),
+            ));
         }
     }
     if st.eval_episodes < 1 {
-        return Err(err("study.eval_episodes", format!("must be >= 1, got {}", st.eval_episodes)));
+        return Err(err(
+            "study.eval_episodes",
+            format!("must be >= 1, got {}", st.eval_episodes),
+        ));
     }
     if !(0.0..=1.0).contains(&st.success_threshold) {
-        return Err(err("study.success_threshold", format!("must be in [0, 1], got {}", st.success_threshold)));
+        return Err(err(
+            "study.success_threshold",
+            format!("must be in [0, 1], got {}", st.success_threshold),
+        ));
     }
     if st.final_window < 1 {
-        return Err(err("study.final_window", format!("must be >= 1, got {}", st.final_window)));
+        return Err(err(
+            "study.final_window",
+            format!("must be >= 1, got {}", st.final_window),
+        ));
     }
 
     // The base table: the scenario file (if any) with inline scenario keys merged over it.
@@ -310,10 +359,16 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
     let mut scenario = Table::new();
     let mut inline = raw.scenario.clone();
     if let Some(file) = inline.remove("file") {
-        let rel = file.as_str().ok_or_else(|| err("scenario.file", "must be a path string".into()))?;
+        let rel = file
+            .as_str()
+            .ok_or_else(|| err("scenario.file", "must be a path string".into()))?;
         let p = path.parent().unwrap_or(Path::new(".")).join(rel);
-        let text = std::fs::read_to_string(&p)
-            .map_err(|e| err("scenario.file", format!("cannot read scenario file {}: {e}", p.display())))?;
+        let text = std::fs::read_to_string(&p).map_err(|e| {
+            err(
+                "scenario.file",
+                format!("cannot read scenario file {}: {e}", p.display()),
+            )
+        })?;
         scenario = parse_toml::<Table>(&text, &p.display().to_string())?;
         // Validate the file on its own so its errors name its own lines.
         Scenario::from_toml_str(&text, &p.display().to_string())?;
@@ -338,7 +393,12 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
         let mut v = v.clone();
         let name = match v.remove("name") {
             Some(Value::String(s)) => s,
-            _ => return Err(err(&format!("variant[{i}].name"), "every [[variant]] needs a `name` string".into())),
+            _ => {
+                return Err(err(
+                    &format!("variant[{i}].name"),
+                    "every [[variant]] needs a `name` string".into(),
+                ))
+            }
         };
         for k in v.keys() {
             if k != "kind" && !VARIANT_SECTIONS.contains(&k.as_str()) {
@@ -352,12 +412,18 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
     }
     if let Some(g) = &raw.generate {
         let known_terms: Vec<String> = raw.reward.keys().cloned().collect();
-        for (list, kind) in [(&g.leave_one_out, "leave_one_out"), (&g.one_only, "one_only")] {
+        for (list, kind) in [
+            (&g.leave_one_out, "leave_one_out"),
+            (&g.one_only, "one_only"),
+        ] {
             for (j, t) in list.iter().enumerate() {
                 if !known_terms.contains(t) {
                     return Err(err(
                         &format!("generate.{kind}[{j}]"),
-                        format!("`{t}` is not a term of the base [reward] table (terms: {})", known_terms.join(", ")),
+                        format!(
+                            "`{t}` is not a term of the base [reward] table (terms: {})",
+                            known_terms.join(", ")
+                        ),
                     ));
                 }
             }
@@ -365,7 +431,12 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
         for t in &g.leave_one_out {
             let mut o = Table::new();
             set_dotted(&mut o, &format!("reward.{t}.weight"), Value::Float(0.0));
-            overrides.push((format!("without-{t}"), o, "generate.leave_one_out".into(), None));
+            overrides.push((
+                format!("without-{t}"),
+                o,
+                "generate.leave_one_out".into(),
+                None,
+            ));
         }
         for t in &g.one_only {
             let mut o = Table::new();
@@ -378,11 +449,20 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
             let keys: Vec<&String> = g.grid.keys().collect();
             for k in &keys {
                 if g.grid[*k].is_empty() {
-                    return Err(err(&format!("generate.grid.{k}"), "needs at least one value".into()));
+                    return Err(err(
+                        &format!("generate.grid.{k}"),
+                        "needs at least one value".into(),
+                    ));
                 }
                 let top = k.split('.').next().unwrap_or("");
                 if !VARIANT_SECTIONS.contains(&top) {
-                    return Err(err(&format!("generate.grid.{k}"), format!("grid keys must start with one of {}", VARIANT_SECTIONS.join(", "))));
+                    return Err(err(
+                        &format!("generate.grid.{k}"),
+                        format!(
+                            "grid keys must start with one of {}",
+                            VARIANT_SECTIONS.join(", ")
+                        ),
+                    ));
                 }
             }
             let total: usize = keys.iter().map(|k| g.grid[*k].len()).product();
@@ -405,7 +485,12 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
                     let short = k.trim_start_matches("reward.").trim_end_matches(".weight");
                     parts.push(format!("{short}={}", fmt_num(v)));
                 }
-                overrides.push((format!("grid-{}", parts.join("_")), o, "generate.grid".into(), Some(coords)));
+                overrides.push((
+                    format!("grid-{}", parts.join("_")),
+                    o,
+                    "generate.grid".into(),
+                    Some(coords),
+                ));
             }
         }
     }
@@ -419,7 +504,10 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
             return Err(err(&format!("{where_}.name"), format!("variant name `{name}` is not safe as a folder name; use letters, digits, -, _, . or =")));
         }
         if variants.iter().any(|v| v.name == name) {
-            return Err(err(&format!("{where_}.name"), format!("duplicate variant name `{name}`")));
+            return Err(err(
+                &format!("{where_}.name"),
+                format!("duplicate variant name `{name}`"),
+            ));
         }
         let mut merged = base.clone();
         let mut over = over;
@@ -427,17 +515,29 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
             None => VariantKind::Learned,
             Some(Value::String(s)) if s == "learned" => VariantKind::Learned,
             Some(Value::String(s)) if s == "baseline" => VariantKind::Baseline,
-            Some(v) => return Err(err(&format!("{where_}.kind"), format!("must be \"learned\" or \"baseline\", got {v}"))),
+            Some(v) => {
+                return Err(err(
+                    &format!("{where_}.kind"),
+                    format!("must be \"learned\" or \"baseline\", got {v}"),
+                ))
+            }
         };
         deep_merge(&mut merged, &over);
         let changes = diff(&base, &merged);
         let spec = validate_variant(&name, kind, &merged, o, src, &where_)?;
-        variants.push(VariantSpec { changes, grid, ..spec });
+        variants.push(VariantSpec {
+            changes,
+            grid,
+            ..spec
+        });
     }
     if let Some(r) = &st.reference {
         if !variants.iter().any(|v| &v.name == r) {
             let names: Vec<_> = variants.iter().map(|v| v.name.as_str()).collect();
-            return Err(err("study.reference", format!("no variant named `{r}`; variants: {}", names.join(", "))));
+            return Err(err(
+                "study.reference",
+                format!("no variant named `{r}`; variants: {}", names.join(", ")),
+            ));
         }
     }
     for v in &variants {
@@ -449,41 +549,71 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
             ));
         }
     }
-    Ok(Experiment { study: raw.study, variants, source: src.to_string(), path: path.to_path_buf() })
+    Ok(Experiment {
+        study: raw.study,
+        variants,
+        source: src.to_string(),
+        path: path.to_path_buf(),
+    })
 }
 
 /// Validate one merged variant table. Errors name the key as written in the base, prefixed by where the
 /// override came from when the problem is in an override.
-fn validate_variant(name: &str, kind: VariantKind, merged: &Table, o: &str, src: &str, where_: &str) -> Result<VariantSpec, ConfigError> {
+fn validate_variant(
+    name: &str,
+    kind: VariantKind,
+    merged: &Table,
+    o: &str,
+    src: &str,
+    where_: &str,
+) -> Result<VariantSpec, ConfigError> {
     let relabel = |mut e: ConfigError| {
         if where_ != "base" {
             e.message = format!("{} (in variant `{name}`, from {where_})", e.message);
         }
         e
     };
-    let table = |k: &str| merged.get(k).and_then(|v| v.as_table()).cloned().unwrap_or_default();
+    let table = |k: &str| {
+        merged
+            .get(k)
+            .and_then(|v| v.as_table())
+            .cloned()
+            .unwrap_or_default()
+    };
     let sc = Scenario::from_toml_value(Value::Table(table("scenario")), src, o).map_err(relabel)?;
     let typed = |k: &str| -> Result<String, ConfigError> {
         toml::to_string(&table(k)).map_err(|e| ConfigError::at(o, src, k, e.to_string()))
     };
     let sub = |k: &str, e: ConfigError| {
-        let path = if e.path.is_empty() { k.to_string() } else { format!("{k}.{}", e.path) };
-        relabel(ConfigError { line: crate::config::locate_line(src, &path), path, ..e })
+        let path = if e.path.is_empty() {
+            k.to_string()
+        } else {
+            format!("{k}.{}", e.path)
+        };
+        relabel(ConfigError {
+            line: crate::config::locate_line(src, &path),
+            path,
+            ..e
+        })
     };
     let plan: PlanSpec = parse_toml(&typed("plan")?, o).map_err(|e| sub("plan", e))?;
     plan.validate(o, src).map_err(relabel)?;
-    let curriculum: CurriculumSpec = parse_toml(&typed("curriculum")?, o).map_err(|e| sub("curriculum", e))?;
+    let curriculum: CurriculumSpec =
+        parse_toml(&typed("curriculum")?, o).map_err(|e| sub("curriculum", e))?;
     curriculum.validate(o, src, "curriculum").map_err(relabel)?;
     let learner: PpoConfig = parse_toml(&typed("learner")?, o).map_err(|e| sub("learner", e))?;
     learner
         .validate()
         .map_err(|e| relabel(ConfigError::at(o, src, "learner", e.to_string())))?;
-    let observation: ObservationSpec = parse_toml(&typed("observation")?, o).map_err(|e| sub("observation", e))?;
+    let observation: ObservationSpec =
+        parse_toml(&typed("observation")?, o).map_err(|e| sub("observation", e))?;
     let reward = RewardSpec::from_table(&table("reward"), o, src).map_err(relabel)?;
-    let baseline: crate::control::BaselineSpec = parse_toml(&typed("baseline")?, o).map_err(|e| sub("baseline", e))?;
+    let baseline: crate::control::BaselineSpec =
+        parse_toml(&typed("baseline")?, o).map_err(|e| sub("baseline", e))?;
     baseline.validate(o, src).map_err(relabel)?;
     baseline.check_joints(sc.n(), o, src).map_err(relabel)?;
-    let merged_text = toml::to_string(merged).map_err(|e| ConfigError::at(o, src, "", e.to_string()))?;
+    let merged_text =
+        toml::to_string(merged).map_err(|e| ConfigError::at(o, src, "", e.to_string()))?;
     Ok(VariantSpec {
         name: name.to_string(),
         kind,
@@ -531,13 +661,23 @@ mod tests {
 
     #[test]
     fn merge_and_diff() {
-        let mut base: Table = toml::from_str("[reward.time]\nweight = 1.0\ncost = 0.01\n[reward.goal]\nweight = 1.0\n").unwrap();
+        let mut base: Table = toml::from_str(
+            "[reward.time]\nweight = 1.0\ncost = 0.01\n[reward.goal]\nweight = 1.0\n",
+        )
+        .unwrap();
         let over: Table = toml::from_str("[reward.time]\nweight = 0.0\n").unwrap();
         let orig = base.clone();
         deep_merge(&mut base, &over);
         assert_eq!(base["reward"]["time"]["cost"].as_float(), Some(0.01));
         let d = diff(&orig, &base);
-        assert_eq!(d, vec![Change { key: "reward.time.weight".into(), base: "1.0".into(), value: "0.0".into() }]);
+        assert_eq!(
+            d,
+            vec![Change {
+                key: "reward.time.weight".into(),
+                base: "1.0".into(),
+                value: "0.0".into()
+            }]
+        );
     }
 
     #[test]

@@ -37,7 +37,10 @@ pub struct RunRecord {
 }
 
 fn now_unix() -> u64 {
-    std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs()).unwrap_or(0)
+    std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|d| d.as_secs())
+        .unwrap_or(0)
 }
 
 impl RunRecord {
@@ -60,7 +63,13 @@ impl RunRecord {
         self.wall_seconds = wall;
         self.heartbeat_unix = now_unix();
     }
-    pub fn finish(&mut self, status: RunStatus, env_steps: u64, wall: f64, message: Option<String>) {
+    pub fn finish(
+        &mut self,
+        status: RunStatus,
+        env_steps: u64,
+        wall: f64,
+        message: Option<String>,
+    ) {
         self.heartbeat(env_steps, wall);
         self.status = status;
         self.message = message;
@@ -68,7 +77,10 @@ impl RunRecord {
 }
 
 fn io(path: &Path) -> impl FnOnce(std::io::Error) -> StudyError + '_ {
-    move |source| StudyError::Io { path: path.to_path_buf(), source }
+    move |source| StudyError::Io {
+        path: path.to_path_buf(),
+        source,
+    }
 }
 
 /// Read a run's run.json, if present and readable.
@@ -85,7 +97,14 @@ pub fn write_run_json(dir: &Path, r: &RunRecord) -> Result<(), StudyError> {
 
 /// Remove the files of an unfinished earlier attempt (a run restarts from scratch).
 pub fn clear_run(dir: &Path) -> Result<(), StudyError> {
-    for f in ["progress.csv", "terms.csv", "policy.safetensors", "policy.json", "policy-best.safetensors", "policy-best.json"] {
+    for f in [
+        "progress.csv",
+        "terms.csv",
+        "policy.safetensors",
+        "policy.json",
+        "policy-best.safetensors",
+        "policy-best.json",
+    ] {
         let p = dir.join(f);
         if p.exists() {
             std::fs::remove_file(&p).map_err(io(&p))?;
@@ -125,7 +144,11 @@ pub fn write_progress(dir: &Path, rows: &[(u64, EvalSummary, f64)]) -> Result<()
 }
 
 /// Write terms.csv (mean per-episode contribution of each reward term, one row per evaluation).
-pub fn write_terms(dir: &Path, names: &[String], rows: &[(u64, EvalSummary, f64)]) -> Result<(), StudyError> {
+pub fn write_terms(
+    dir: &Path,
+    names: &[String],
+    rows: &[(u64, EvalSummary, f64)],
+) -> Result<(), StudyError> {
     let mut s = String::from("env_steps");
     for n in names {
         s.push(',');
@@ -195,5 +218,11 @@ pub fn write_study_json(dir: &Path, exp: &Experiment) -> Result<(), StudyError> 
         config_toml: exp.source.clone(),
     };
     let p = dir.join("study.json");
-    write_atomic(&p, serde_json::to_string_pretty(&rec).expect("serialises").as_bytes()).map_err(io(&p))
+    write_atomic(
+        &p,
+        serde_json::to_string_pretty(&rec)
+            .expect("serialises")
+            .as_bytes(),
+    )
+    .map_err(io(&p))
 }

@@ -24,9 +24,18 @@ pub enum StudyError {
     #[error("{0}")]
     Config(#[from] ConfigError),
     #[error("{path}: {source}")]
-    Io { path: PathBuf, source: std::io::Error },
+    Io {
+        path: PathBuf,
+        source: std::io::Error,
+    },
     #[error("{dir}: results there come from a different configuration (run {variant}/seed-{seed} has config hash {found}, this file gives {expected}); refusing to mix them — choose a new --out folder or remove the old results")]
-    ChangedConfig { dir: PathBuf, variant: String, seed: u64, found: String, expected: String },
+    ChangedConfig {
+        dir: PathBuf,
+        variant: String,
+        seed: u64,
+        found: String,
+        expected: String,
+    },
     #[error("--cell {cell} is outside the plan (0..{runs}); `termwise check` prints the plan")]
     NoSuchCell { cell: usize, runs: usize },
     #[error("run failed: {0}")]
@@ -36,7 +45,12 @@ pub enum StudyError {
 impl StudyError {
     /// True when the user's input is at fault (exit code 2).
     pub fn is_bad_input(&self) -> bool {
-        matches!(self, StudyError::Config(_) | StudyError::ChangedConfig { .. } | StudyError::NoSuchCell { .. })
+        matches!(
+            self,
+            StudyError::Config(_)
+                | StudyError::ChangedConfig { .. }
+                | StudyError::NoSuchCell { .. }
+        )
     }
 }
 
@@ -59,14 +73,21 @@ fn pending(runs: &[RunSpec], exp: &Experiment) -> Result<(Vec<RunSpec>, usize), 
         match layout::read_run_json(&r.dir) {
             Some(rec) if rec.config_hash != r.config_hash => {
                 return Err(StudyError::ChangedConfig {
-                    dir: r.dir.parent().and_then(|p| p.parent()).unwrap_or(&r.dir).to_path_buf(),
+                    dir: r
+                        .dir
+                        .parent()
+                        .and_then(|p| p.parent())
+                        .unwrap_or(&r.dir)
+                        .to_path_buf(),
                     variant: exp.variants[r.variant].name.clone(),
                     seed: r.seed,
                     found: rec.config_hash,
                     expected: r.config_hash.clone(),
                 })
             }
-            Some(rec) if matches!(rec.status, RunStatus::Done | RunStatus::Diverged) => skipped += 1,
+            Some(rec) if matches!(rec.status, RunStatus::Done | RunStatus::Diverged) => {
+                skipped += 1
+            }
             _ => todo.push(r.clone()),
         }
     }
@@ -74,28 +95,59 @@ fn pending(runs: &[RunSpec], exp: &Experiment) -> Result<(Vec<RunSpec>, usize), 
 }
 
 /// Run a study (or one cell of it) with `jobs` workers; `stop` is raised by Ctrl-C.
-pub fn run_study(exp: &Experiment, out: &Path, jobs: usize, cell: Option<usize>, stop: &AtomicBool) -> Result<StudyOutcome, StudyError> {
+pub fn run_study(
+    exp: &Experiment,
+    out: &Path,
+    jobs: usize,
+    cell: Option<usize>,
+    stop: &AtomicBool,
+) -> Result<StudyOutcome, StudyError> {
     let all = plan_runs(exp, out);
     let selected: Vec<RunSpec> = match cell {
-        Some(k) => vec![all.get(k).cloned().ok_or(StudyError::NoSuchCell { cell: k, runs: all.len() })?],
+        Some(k) => vec![all.get(k).cloned().ok_or(StudyError::NoSuchCell {
+            cell: k,
+            runs: all.len(),
+        })?],
         None => all.clone(),
     };
     let (todo, skipped) = pending(&selected, exp)?;
-    std::fs::create_dir_all(out).map_err(|source| StudyError::Io { path: out.to_path_buf(), source })?;
+    std::fs::create_dir_all(out).map_err(|source| StudyError::Io {
+        path: out.to_path_buf(),
+        source,
+    })?;
     layout::write_study_json(out, exp)?;
-    let mut outcome = StudyOutcome { out: out.to_path_buf(), skipped, ..Default::default() };
+    let mut outcome = StudyOutcome {
+        out: out.to_path_buf(),
+        skipped,
+        ..Default::default()
+    };
     if todo.is_empty() {
         tracing::info!("all {} selected runs are already finished", selected.len());
         return Ok(outcome);
     }
     let tty = std::io::stderr().is_terminal();
-    let multi = MultiProgress::with_draw_target(if tty { ProgressDrawTarget::stderr() } else { ProgressDrawTarget::hidden() });
-    let total_steps: u64 = todo.iter().map(|r| if exp.variants[r.variant].kind == VariantKind::Baseline { 1 } else { exp.study.budget as u64 }).sum();
+    let multi = MultiProgress::with_draw_target(if tty {
+        ProgressDrawTarget::stderr()
+    } else {
+        ProgressDrawTarget::hidden()
+    });
+    let total_steps: u64 = todo
+        .iter()
+        .map(|r| {
+            if exp.variants[r.variant].kind == VariantKind::Baseline {
+                1
+            } else {
+                exp.study.budget as u64
+            }
+        })
+        .sum();
     let overall = multi.add(ProgressBar::new(total_steps));
     overall.set_style(
-        ProgressStyle::with_template("{prefix:>10} [{bar:30}] {percent:>3}%  {pos}/{len} steps  eta {eta}")
-            .expect("valid template")
-            .progress_chars("=> "),
+        ProgressStyle::with_template(
+            "{prefix:>10} [{bar:30}] {percent:>3}%  {pos}/{len} steps  eta {eta}",
+        )
+        .expect("valid template")
+        .progress_chars("=> "),
     );
     overall.set_prefix("study");
     let next = AtomicUsize::new(0);
@@ -107,20 +159,29 @@ pub fn run_study(exp: &Experiment, out: &Path, jobs: usize, cell: Option<usize>,
         for _ in 0..workers {
             s.spawn(|| loop {
                 let i = next.fetch_add(1, Ordering::SeqCst);
-                if i >= todo.len() || stop.load(Ordering::SeqCst) || error.lock().expect("lock").is_some() {
+                if i >= todo.len()
+                    || stop.load(Ordering::SeqCst)
+                    || error.lock().expect("lock").is_some()
+                {
                     break;
                 }
                 let r = &todo[i];
                 let v = &exp.variants[r.variant];
                 let line = multi.add(ProgressBar::new(exp.study.budget as u64));
-                line.set_style(ProgressStyle::with_template("  {prefix:<40} {pos:>8} steps  {msg}").expect("valid template"));
+                line.set_style(
+                    ProgressStyle::with_template("  {prefix:<40} {pos:>8} steps  {msg}")
+                        .expect("valid template"),
+                );
                 line.set_prefix(format!("{} seed {}", v.name, r.seed));
                 let mut last = 0u64;
                 let mut on_progress = |p: &run::RunProgress| {
                     overall.inc(p.env_steps.saturating_sub(last));
                     last = p.env_steps;
                     line.set_position(p.env_steps);
-                    line.set_message(format!("success {:.2}  level {:.2}", p.success_rate, p.level));
+                    line.set_message(format!(
+                        "success {:.2}  level {:.2}",
+                        p.success_rate, p.level
+                    ));
                     if !tty {
                         eprintln!(
                             "termwise: [{}/{}] {} seed {}: {} steps, success {:.2}, level {:.2}",
@@ -161,7 +222,16 @@ pub fn run_study(exp: &Experiment, out: &Path, jobs: usize, cell: Option<usize>,
 }
 
 fn outcome_total(exp: &Experiment) -> usize {
-    exp.variants.iter().map(|v| if v.kind == VariantKind::Baseline { 1 } else { exp.seeds() as usize }).sum()
+    exp.variants
+        .iter()
+        .map(|v| {
+            if v.kind == VariantKind::Baseline {
+                1
+            } else {
+                exp.seeds() as usize
+            }
+        })
+        .sum()
 }
 
 /// `termwise check`: the plan as text — each variant and what it changes, runs, steps, and a wall-time estimate
@@ -170,10 +240,24 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
     use std::fmt::Write as _;
     let runs = plan_runs(exp, Path::new("results").join(&exp.study.name).as_path());
     let mut s = String::new();
-    let _ = writeln!(s, "study `{}`: {} variants x {} seeds", exp.study.name, exp.variants.len(), exp.seeds());
+    let _ = writeln!(
+        s,
+        "study `{}`: {} variants x {} seeds",
+        exp.study.name,
+        exp.variants.len(),
+        exp.seeds()
+    );
     for (i, v) in exp.variants.iter().enumerate() {
-        let tag = if i == exp.reference_index() { " (reference)" } else { "" };
-        let kind = if v.kind == VariantKind::Baseline { " [baseline controller]" } else { "" };
+        let tag = if i == exp.reference_index() {
+            " (reference)"
+        } else {
+            ""
+        };
+        let kind = if v.kind == VariantKind::Baseline {
+            " [baseline controller]"
+        } else {
+            ""
+        };
         let _ = writeln!(s, "  {}{}{}", v.name, kind, tag);
         if v.changes.is_empty() {
             let _ = writeln!(s, "      (the base configuration)");
@@ -184,9 +268,16 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
     }
     let _ = writeln!(s, "plan ({} runs, `--cell K` runs one):", runs.len());
     for r in &runs {
-        let _ = writeln!(s, "  cell {:>3}: {} seed {}", r.index, exp.variants[r.variant].name, r.seed);
+        let _ = writeln!(
+            s,
+            "  cell {:>3}: {} seed {}",
+            r.index, exp.variants[r.variant].name, r.seed
+        );
     }
-    let learned = runs.iter().filter(|r| exp.variants[r.variant].kind == VariantKind::Learned).count() as u64;
+    let learned = runs
+        .iter()
+        .filter(|r| exp.variants[r.variant].kind == VariantKind::Learned)
+        .count() as u64;
     let total = learned * exp.study.budget as u64;
     let evals = exp.study.budget as u64 / exp.eval_every() + 1;
     let _ = writeln!(
@@ -226,11 +317,19 @@ fn calibration(exp: &Experiment) -> Result<(f64, f64), StudyError> {
     let Some(v) = exp.variants.iter().find(|v| v.kind == VariantKind::Learned) else {
         return Ok((f64::INFINITY, 0.0));
     };
-    let shared = std::sync::Arc::new(Mutex::new(task::RunShared { curriculum: v.curriculum.build(), env_steps: 0, episodes: 0, successes: 0 }));
+    let shared = std::sync::Arc::new(Mutex::new(task::RunShared {
+        curriculum: v.curriculum.build(),
+        env_steps: 0,
+        episodes: 0,
+        successes: 0,
+    }));
     let envs = run::build_envs(v, 1, &shared);
-    let mut trainer = crate::learn::Trainer::new(v.learner.clone(), envs, 1).map_err(|e| StudyError::Run(e.to_string()))?;
+    let mut trainer = crate::learn::Trainer::new(v.learner.clone(), envs, 1)
+        .map_err(|e| StudyError::Run(e.to_string()))?;
     let t = Instant::now();
-    trainer.iterate(&mut crate::learn::NoObserver).map_err(|e| StudyError::Run(e.to_string()))?;
+    trainer
+        .iterate(&mut crate::learn::NoObserver)
+        .map_err(|e| StudyError::Run(e.to_string()))?;
     let sps = trainer.env_steps() as f64 / t.elapsed().as_secs_f64();
     let mut small = exp.clone();
     small.study.eval_episodes = 4;
@@ -241,7 +340,14 @@ fn calibration(exp: &Experiment) -> Result<(f64, f64), StudyError> {
 }
 
 /// The whole `termwise run` command: load, run (or one cell), then draw the report and return the terminal summary.
-pub fn cli_run(path: &Path, jobs: usize, out: Option<PathBuf>, cell: Option<usize>, report: bool, stop: &AtomicBool) -> Result<String, StudyError> {
+pub fn cli_run(
+    path: &Path,
+    jobs: usize,
+    out: Option<PathBuf>,
+    cell: Option<usize>,
+    report: bool,
+    stop: &AtomicBool,
+) -> Result<String, StudyError> {
     let exp = experiment::load(path)?;
     let out = out.unwrap_or_else(|| Path::new("results").join(&exp.study.name));
     let o = run_study(&exp, &out, jobs, cell, stop)?;

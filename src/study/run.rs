@@ -27,7 +27,11 @@ pub struct RunSpec {
 pub fn plan_runs(exp: &Experiment, out: &Path) -> Vec<RunSpec> {
     let mut runs = Vec::new();
     for (vi, v) in exp.variants.iter().enumerate() {
-        let seeds = if v.kind == VariantKind::Baseline { 1 } else { exp.seeds() };
+        let seeds = if v.kind == VariantKind::Baseline {
+            1
+        } else {
+            exp.seeds()
+        };
         for seed in 0..seeds {
             runs.push(RunSpec {
                 index: runs.len(),
@@ -53,12 +57,21 @@ pub fn config_hash(exp: &Experiment, v: &VariantSpec, seed: u64) -> String {
         seed,
         env!("CARGO_PKG_VERSION")
     );
-    fnv1a_hex(&[st.name.as_bytes(), v.name.as_bytes(), v.merged.as_bytes(), settings.as_bytes()])
+    fnv1a_hex(&[
+        st.name.as_bytes(),
+        v.name.as_bytes(),
+        v.merged.as_bytes(),
+        settings.as_bytes(),
+    ])
 }
 
 /// The run's random seed, derived from (study name, variant name, seed).
 pub fn run_seed(exp: &Experiment, v: &VariantSpec, seed: u64) -> u64 {
-    let h = fnv1a_hex(&[exp.study.name.as_bytes(), v.name.as_bytes(), &seed.to_le_bytes()]);
+    let h = fnv1a_hex(&[
+        exp.study.name.as_bytes(),
+        v.name.as_bytes(),
+        &seed.to_le_bytes(),
+    ]);
     u64::from_str_radix(&h, 16).expect("16 hex digits")
 }
 
@@ -72,7 +85,13 @@ pub struct RunProgress {
 
 /// Evaluate a deterministic policy on the study's fixed evaluation episodes.
 pub fn evaluate_policy(exp: &Experiment, v: &VariantSpec, policy: &Policy) -> EvalSummary {
-    let mut ep = Episode::new(v.scenario.clone(), &v.reward, &v.plan, v.learner.gamma, v.observation.waypoints);
+    let mut ep = Episode::new(
+        v.scenario.clone(),
+        &v.reward,
+        &v.plan,
+        v.learner.gamma,
+        v.observation.waypoints,
+    );
     let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
     let mut act = |_: &Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
     for j in 0..exp.study.eval_episodes as u64 {
@@ -85,7 +104,13 @@ pub fn evaluate_policy(exp: &Experiment, v: &VariantSpec, policy: &Policy) -> Ev
 /// Evaluate the classical tracking controller on the study's fixed evaluation episodes. The tracker follows
 /// each episode's reference path and is re-targeted whenever the episode replans after a scenario event.
 pub fn evaluate_baseline(exp: &Experiment, v: &VariantSpec) -> EvalSummary {
-    let mut ep = Episode::new(v.scenario.clone(), &v.reward, &v.plan, v.learner.gamma, v.observation.waypoints);
+    let mut ep = Episode::new(
+        v.scenario.clone(),
+        &v.reward,
+        &v.plan,
+        v.learner.gamma,
+        v.observation.waypoints,
+    );
     let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
     for j in 0..exp.study.eval_episodes as u64 {
         let (d, mut rng) = eval_draw(&mut ep, exp.study.eval_seed, j);
@@ -117,23 +142,47 @@ pub fn baseline_actor(v: &VariantSpec) -> impl FnMut(&Episode, &[f32], &mut [f32
 }
 
 /// Build the training environments of a run.
-pub fn build_envs(v: &VariantSpec, rseed: u64, shared: &Arc<Mutex<RunShared>>) -> Vec<Box<dyn Environment>> {
+pub fn build_envs(
+    v: &VariantSpec,
+    rseed: u64,
+    shared: &Arc<Mutex<RunShared>>,
+) -> Vec<Box<dyn Environment>> {
     (0..v.learner.num_envs)
         .map(|i| {
-            let ep = Episode::new(v.scenario.clone(), &v.reward, &v.plan, v.learner.gamma, v.observation.waypoints);
-            Box::new(TaskEnv::new(ep, rseed ^ (i as u64 + 1).wrapping_mul(0x9E37_79B9_7F4A_7C15), shared.clone())) as Box<dyn Environment>
+            let ep = Episode::new(
+                v.scenario.clone(),
+                &v.reward,
+                &v.plan,
+                v.learner.gamma,
+                v.observation.waypoints,
+            );
+            Box::new(TaskEnv::new(
+                ep,
+                rseed ^ (i as u64 + 1).wrapping_mul(0x9E37_79B9_7F4A_7C15),
+                shared.clone(),
+            )) as Box<dyn Environment>
         })
         .collect()
 }
 
 /// Execute one run to completion (or interruption / divergence), writing its folder as it goes.
-pub fn execute(exp: &Experiment, spec: &RunSpec, stop: &AtomicBool, on_progress: &mut dyn FnMut(&RunProgress)) -> Result<RunStatus, StudyError> {
+pub fn execute(
+    exp: &Experiment,
+    spec: &RunSpec,
+    stop: &AtomicBool,
+    on_progress: &mut dyn FnMut(&RunProgress),
+) -> Result<RunStatus, StudyError> {
     let v = &exp.variants[spec.variant];
     let t0 = Instant::now();
     let mut record = RunRecord::new(exp, v, spec);
     layout::clear_run(&spec.dir)?;
     layout::write_run_json(&spec.dir, &record)?;
-    let term_names: Vec<String> = v.reward.term_names().iter().map(|s| s.to_string()).collect();
+    let term_names: Vec<String> = v
+        .reward
+        .term_names()
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
     let mut rows: Vec<(u64, EvalSummary, f64)> = Vec::new();
     let save_rows = |rows: &[(u64, EvalSummary, f64)]| -> Result<(), StudyError> {
         layout::write_progress(&spec.dir, rows)?;
@@ -152,26 +201,43 @@ pub fn execute(exp: &Experiment, spec: &RunSpec, stop: &AtomicBool, on_progress:
         cfg.lr_decay_steps = exp.study.budget as u64;
     }
     let rseed = run_seed(exp, v, spec.seed);
-    let shared = Arc::new(Mutex::new(RunShared { curriculum: v.curriculum.build(), env_steps: 0, episodes: 0, successes: 0 }));
+    let shared = Arc::new(Mutex::new(RunShared {
+        curriculum: v.curriculum.build(),
+        env_steps: 0,
+        episodes: 0,
+        successes: 0,
+    }));
     let envs = build_envs(v, rseed, &shared);
-    let mut trainer = Trainer::new(cfg, envs, rseed).map_err(|e| StudyError::Run(format!("{}: {e}", spec.dir.display())))?;
+    let mut trainer = Trainer::new(cfg, envs, rseed)
+        .map_err(|e| StudyError::Run(format!("{}: {e}", spec.dir.display())))?;
     let ckpt = spec.dir.join("policy.safetensors");
     let best = spec.dir.join("policy-best.safetensors");
     let budget = exp.study.budget as u64;
     let every = exp.eval_every();
     let mut best_success = -1.0;
     let level = |sh: &Arc<Mutex<RunShared>>| sh.lock().expect("run state").curriculum.level();
-    let mut evaluate = |trainer: &Trainer, rows: &mut Vec<(u64, EvalSummary, f64)>, best_success: &mut f64| -> Result<(), StudyError> {
+    let mut evaluate = |trainer: &Trainer,
+                        rows: &mut Vec<(u64, EvalSummary, f64)>,
+                        best_success: &mut f64|
+     -> Result<(), StudyError> {
         let s = evaluate_policy(exp, v, trainer.policy());
         let lv = level(&shared);
-        on_progress(&RunProgress { env_steps: trainer.env_steps(), success_rate: s.success_rate, level: lv });
+        on_progress(&RunProgress {
+            env_steps: trainer.env_steps(),
+            success_rate: s.success_rate,
+            level: lv,
+        });
         let improved = s.success_rate > *best_success;
         rows.push((trainer.env_steps(), s, lv));
         save_rows(rows)?;
-        trainer.save_checkpoint(&ckpt).map_err(|e| StudyError::Run(e.to_string()))?;
+        trainer
+            .save_checkpoint(&ckpt)
+            .map_err(|e| StudyError::Run(e.to_string()))?;
         if improved {
             *best_success = rows.last().expect("just pushed").1.success_rate;
-            trainer.save_checkpoint(&best).map_err(|e| StudyError::Run(e.to_string()))?;
+            trainer
+                .save_checkpoint(&best)
+                .map_err(|e| StudyError::Run(e.to_string()))?;
         }
         Ok(())
     };
@@ -206,7 +272,12 @@ pub fn execute(exp: &Experiment, spec: &RunSpec, stop: &AtomicBool, on_progress:
         // Record where the run stopped (the trainer's weights are the last good ones).
         evaluate(&trainer, &mut rows, &mut best_success)?;
     }
-    record.finish(status, trainer.env_steps(), t0.elapsed().as_secs_f64(), message);
+    record.finish(
+        status,
+        trainer.env_steps(),
+        t0.elapsed().as_secs_f64(),
+        message,
+    );
     layout::write_run_json(&spec.dir, &record)?;
     Ok(status)
 }

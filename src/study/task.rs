@@ -73,7 +73,13 @@ pub struct Episode {
 }
 
 impl Episode {
-    pub fn new(scenario: Arc<Scenario>, reward: &RewardSpec, plan: &PlanSpec, gamma: f64, path_obs: bool) -> Episode {
+    pub fn new(
+        scenario: Arc<Scenario>,
+        reward: &RewardSpec,
+        plan: &PlanSpec,
+        gamma: f64,
+        path_obs: bool,
+    ) -> Episode {
         let sim = ArmEnv::new(scenario);
         let prev = sim.last_report();
         let composer = Composer::new(reward, gamma);
@@ -97,7 +103,12 @@ impl Episode {
 
     /// Observation length: the simulator's plus 2 per waypoint when the policy is path-conditioned.
     pub fn obs_dim(&self) -> usize {
-        self.sim.obs_dim() + if self.path_obs { 2 * self.plan.waypoints } else { 0 }
+        self.sim.obs_dim()
+            + if self.path_obs {
+                2 * self.plan.waypoints
+            } else {
+                0
+            }
     }
 
     pub fn act_dim(&self) -> usize {
@@ -109,7 +120,13 @@ impl Episode {
     pub fn begin(&mut self, d: &EpisodeDraw, rng: &mut ChaCha8Rng) {
         self.sim.set_difficulty(d.obstacles, d.jump_rate);
         self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
-        let path = plan_path(&self.sim, &d.start.q[..self.sim.n()], d.goal, &self.plan, &mut self.plan_rng);
+        let path = plan_path(
+            &self.sim,
+            &d.start.q[..self.sim.n()],
+            d.goal,
+            &self.plan,
+            &mut self.plan_rng,
+        );
         let mut start = d.start;
         if d.start_on_path && path.joints.len() > 1 {
             let k = rng.gen_range(0..path.joints.len() - 1);
@@ -138,7 +155,13 @@ impl Episode {
         }
         let now = self.sim.step(&u[..n]);
         if now.goal_jumped || now.obstacle_moved {
-            let path = plan_path(&self.sim, &now.q[..n], now.goal, &self.plan, &mut self.plan_rng);
+            let path = plan_path(
+                &self.sim,
+                &now.q[..n],
+                now.goal,
+                &self.plan,
+                &mut self.plan_rng,
+            );
             self.acc.replans += 1;
             self.acc.fallbacks += path.fallback as usize;
             self.path = path;
@@ -194,7 +217,11 @@ impl Episode {
             steps: a.steps,
             rms_acc: (a.sum_sq_acc / (steps * n)).sqrt(),
             peak_acc: a.peak_acc,
-            rms_jerk: if a.jerk_samples > 0 { (a.sum_sq_jerk / (a.jerk_samples as f64 * n)).sqrt() } else { 0.0 },
+            rms_jerk: if a.jerk_samples > 0 {
+                (a.sum_sq_jerk / (a.jerk_samples as f64 * n)).sqrt()
+            } else {
+                0.0
+            },
             path_length: a.path_length,
             min_clearance: a.min_clearance,
             path_deviation: a.sum_dev / steps,
@@ -239,7 +266,11 @@ pub struct TaskEnv {
 
 impl TaskEnv {
     pub fn new(ep: Episode, seed: u64, shared: Arc<Mutex<RunShared>>) -> TaskEnv {
-        TaskEnv { ep, rng: ChaCha8Rng::seed_from_u64(seed), shared }
+        TaskEnv {
+            ep,
+            rng: ChaCha8Rng::seed_from_u64(seed),
+            shared,
+        }
     }
 }
 
@@ -274,7 +305,11 @@ impl Environment for TaskEnv {
             let steps = sh.env_steps;
             sh.curriculum.feedback(now.reached_goal, steps);
         }
-        Transition { reward: r as f32, terminated: terminal, truncated }
+        Transition {
+            reward: r as f32,
+            terminated: terminal,
+            truncated,
+        }
     }
 }
 
@@ -283,13 +318,19 @@ impl Environment for TaskEnv {
 pub fn eval_draw(ep: &mut Episode, eval_seed: u64, j: u64) -> (EpisodeDraw, ChaCha8Rng) {
     let mut rng = ChaCha8Rng::seed_from_u64(eval_seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ j);
     let sc = ep.sim.scenario().clone();
-    ep.sim.set_difficulty(sc.obstacles.len(), sc.events.goal_jump_rate);
+    ep.sim
+        .set_difficulty(sc.obstacles.len(), sc.events.goal_jump_rate);
     let d = crate::curriculum::full_task_draw(&ep.sim, &mut rng);
     (d, rng)
 }
 
 /// Run one evaluation episode with a deterministic controller `act(obs, action_out)`.
-pub fn run_episode(ep: &mut Episode, draw: &EpisodeDraw, rng: &mut ChaCha8Rng, act: &mut dyn FnMut(&Episode, &[f32], &mut [f32])) -> EpisodeMetrics {
+pub fn run_episode(
+    ep: &mut Episode,
+    draw: &EpisodeDraw,
+    rng: &mut ChaCha8Rng,
+    act: &mut dyn FnMut(&Episode, &[f32], &mut [f32]),
+) -> EpisodeMetrics {
     ep.begin(draw, rng);
     let mut obs = vec![0f32; ep.obs_dim()];
     let mut action = vec![0f32; ep.act_dim()];
@@ -332,13 +373,20 @@ impl EvalSummary {
         EvalSummary {
             success_rate: mean(&|e| e.success as u8 as f64),
             mean_return: mean(&|e| e.ret),
-            time_to_goal: if succ.is_empty() { f64::NAN } else { succ.iter().sum::<f64>() / succ.len() as f64 },
+            time_to_goal: if succ.is_empty() {
+                f64::NAN
+            } else {
+                succ.iter().sum::<f64>() / succ.len() as f64
+            },
             collision_rate: mean(&|e| e.collided as u8 as f64),
             rms_joint_acc: mean(&|e| e.rms_acc),
             peak_joint_acc: mean(&|e| e.peak_acc),
             rms_jerk: mean(&|e| e.rms_jerk),
             path_length: mean(&|e| e.path_length),
-            min_clearance: eps.iter().map(|e| e.min_clearance).fold(f64::INFINITY, f64::min),
+            min_clearance: eps
+                .iter()
+                .map(|e| e.min_clearance)
+                .fold(f64::INFINITY, f64::min),
             path_deviation: mean(&|e| e.path_deviation),
             replans: mean(&|e| e.replans as f64),
             planner_fallbacks: mean(&|e| e.fallbacks as f64),
