@@ -152,7 +152,7 @@ pub const REGISTRY: &[CurriculumInfo] = &[
         name: "uniform",
         meaning: "start and goal drawn uniformly from the scenario's joint limits and reachable, collision-free goals",
         params: &[],
-        build: |_| Box::new(Uniform::default()),
+        build: |_| Box::new(Uniform),
     },
     CurriculumInfo {
         name: "along-path",

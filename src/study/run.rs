@@ -130,7 +130,7 @@ pub fn baseline_actor(v: &VariantSpec) -> impl FnMut(&Episode, &[f32], &mut [f32
         let t = ep.sim.time();
         // A new episode (time went back) or a replan: follow the current path from here.
         let key = (ep.replans(), t);
-        if seen.map_or(true, |(r, t0)| r != key.0 || t < t0) {
+        if seen.is_none_or(|(r, t0)| r != key.0 || t < t0) {
             tracker.follow(&ep.path, &st.q[..n], &st.dq[..n], t);
         }
         seen = Some(key);

@@ -325,6 +325,7 @@ pub fn eval_draw(ep: &mut Episode, eval_seed: u64, j: u64) -> (EpisodeDraw, ChaC
 }
 
 /// Run one evaluation episode with a deterministic controller `act(obs, action_out)`.
+#[allow(clippy::type_complexity)]
 pub fn run_episode(
     ep: &mut Episode,
     draw: &EpisodeDraw,
