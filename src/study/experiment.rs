@@ -300,6 +300,7 @@ pub fn load(path: &Path) -> Result<Experiment, ConfigError> {
 }
 
 /// Parse and validate experiment text; `path` locates `scenario.file` and names the file in errors.
+#[allow(clippy::type_complexity)]
 pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
     let origin = path.display().to_string();
     let o = origin.as_str();
