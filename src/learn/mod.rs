@@ -16,7 +16,10 @@
 //!
 //! ```no_run
 //! use termwise::learn::{Environment, NoObserver, PpoConfig, Trainer};
-//! # fn envs() -> Vec<Box<dyn Environment>> { unimplemented!() }
+//! # fn envs() -> Vec<Box<dyn Environment>> {
+//! #     // Any `Environment` works; the study runner builds arm tasks (`study::run::build_envs`).
+//! #     Vec::new()
+//! # }
 //! let mut trainer = Trainer::new(PpoConfig::default(), envs(), 7).unwrap();
 //! while trainer.env_steps() < 100_000 {
 //!     let stats = trainer.iterate(&mut NoObserver).unwrap();
