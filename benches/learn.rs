@@ -1,7 +1,9 @@
-//! Speed of the PPO learner on one core: a full iteration (rollout + update) on the default
-//! 2-link reaching scenario with 16 environments, reported as environment steps per second,
-//! plus its parts — the fused rollout forward, GAE, and one candle minibatch step at several
-//! minibatch sizes — and a printed rollout/update breakdown.
+//! Speed of the PPO learner on one core: a full iteration (rollout + update: 16 environments x
+//! 128 steps, 10 epochs, minibatch 256, 64x64 tanh networks) on the default 2-link reaching
+//! scenario, with the fused update path and with the candle autograd path, reported as
+//! environment steps per second with a printed breakdown (rollout steps/s, update samples/s,
+//! end-to-end env-steps/s); plus its parts — the fused rollout forward, GAE, and one minibatch
+//! loss-and-gradients at several minibatch sizes by both paths.
 
 #[allow(dead_code)] // shared with the tests; the bench uses part of it
 #[path = "../tests/common/reach_env.rs"]
@@ -13,36 +15,47 @@ use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use reach_env::{reach_envs, Goals};
+use termwise::learn::fused::{self, FusedWorkspace};
 use termwise::learn::gae::{advantages, Segment};
 use termwise::learn::ppo::{loss_and_grads, Minibatch};
 use termwise::learn::{pin_kernel_threads, Mlp, NoObserver, PpoConfig, Trainer};
 
 fn iteration(c: &mut Criterion) {
     pin_kernel_threads();
-    let cfg = PpoConfig::default();
-    let batch = cfg.batch_size() as u64;
-    let mut tr = Trainer::new(cfg, reach_envs(16, Goals::Random, 3), 3).expect("trainer");
-    tr.iterate(&mut NoObserver).expect("warm-up");
-    let mut g = c.benchmark_group("ppo");
-    g.throughput(Throughput::Elements(batch));
-    g.sample_size(20);
-    g.bench_function("iteration_reach2link_16envs_x128", |b| {
-        b.iter(|| black_box(tr.iterate(&mut NoObserver).expect("iterate")))
-    });
-    g.finish();
-    // Breakdown from the trainer's own timers over 10 more iterations.
-    let (mut ro, mut up) = (0.0, 0.0);
-    for _ in 0..10 {
-        let s = tr.iterate(&mut NoObserver).expect("iterate");
-        ro += s.rollout_seconds;
-        up += s.update_seconds;
+    for (name, fused) in [("fused", true), ("candle", false)] {
+        let cfg = PpoConfig {
+            fused_update: fused,
+            ..PpoConfig::default()
+        };
+        let (batch, epochs) = (cfg.batch_size() as u64, cfg.epochs as f64);
+        let mut tr = Trainer::new(cfg, reach_envs(16, Goals::Random, 3), 3).expect("trainer");
+        tr.iterate(&mut NoObserver).expect("warm-up");
+        let mut g = c.benchmark_group("ppo_iteration");
+        g.throughput(Throughput::Elements(batch));
+        g.sample_size(20);
+        g.bench_function(format!("{name}_reach2link_16envs_x128"), |b| {
+            b.iter(|| black_box(tr.iterate(&mut NoObserver).expect("iterate")))
+        });
+        g.finish();
+        // Breakdown from the trainer's own timers over 20 more iterations.
+        let (mut ro, mut up) = (0.0, 0.0);
+        let k = 20.0;
+        for _ in 0..20 {
+            let s = tr.iterate(&mut NoObserver).expect("iterate");
+            ro += s.rollout_seconds;
+            up += s.update_seconds;
+        }
+        let b = batch as f64;
+        println!(
+            "{name} update, per iteration of {batch} steps: rollout {:.1} ms ({:.0} steps/s), update {:.1} ms \
+             ({:.0} samples/s through {epochs} epochs), end to end {:.0} env-steps/s",
+            ro / k * 1e3,
+            k * b / ro,
+            up / k * 1e3,
+            k * b * epochs / up,
+            k * b / (ro + up)
+        );
     }
-    println!(
-        "breakdown per iteration of {batch} steps: rollout {:.1} ms, update {:.1} ms, {:.0} steps/s end to end",
-        ro * 100.0,
-        up * 100.0,
-        10.0 * batch as f64 / (ro + up)
-    );
 }
 
 fn parts(c: &mut Criterion) {
@@ -83,19 +96,20 @@ fn parts(c: &mut Criterion) {
         })
     });
 
-    // One candle forward + backward of the PPO loss at several minibatch sizes.
+    // One forward + backward of the PPO loss at several minibatch sizes, both paths.
     let cfg = PpoConfig::default();
     let mut tr = Trainer::new(cfg.clone(), reach_envs(16, Goals::Random, 4), 4).expect("trainer");
     tr.iterate(&mut NoObserver).expect("iterate");
     let policy = tr.policy().clone();
     let critic = tr.value_network().clone();
-    let mut g = c.benchmark_group("candle_minibatch_step");
+    let o = policy.obs_dim();
+    let mut ws = FusedWorkspace::default();
+    let mut out = fused::empty_result();
+    let mut g = c.benchmark_group("minibatch_loss_and_grads");
     for mb in [64usize, 256, 512, 2048] {
         let batch = Minibatch {
             len: mb,
-            obs: (0..mb * 21)
-                .map(|i| ((i % 13) as f32 - 6.0) * 0.2)
-                .collect(),
+            obs: (0..mb * o).map(|i| ((i % 13) as f32 - 6.0) * 0.2).collect(),
             actions: (0..mb * 2).map(|i| ((i % 7) as f32 - 3.0) * 0.3).collect(),
             old_log_probs: vec![-2.0; mb],
             advantages: (0..mb).map(|i| ((i % 5) as f32 - 2.0) * 0.5).collect(),
@@ -103,8 +117,14 @@ fn parts(c: &mut Criterion) {
             old_values: vec![0.4; mb],
         };
         g.throughput(Throughput::Elements(mb as u64));
-        g.bench_function(format!("samples_{mb}"), |b| {
+        g.bench_function(format!("candle_{mb}"), |b| {
             b.iter(|| black_box(loss_and_grads(&policy, &critic, &batch, &cfg).expect("step")))
+        });
+        g.bench_function(format!("fused_{mb}"), |b| {
+            b.iter(|| {
+                fused::loss_and_grads_into(&policy, &critic, &batch, &cfg, &mut ws, &mut out);
+                black_box(out.policy_loss)
+            })
         });
     }
     g.finish();

@@ -34,6 +34,7 @@ pub mod checkpoint;
 mod config;
 mod env;
 mod error;
+pub mod fused;
 pub mod gae;
 pub mod gaussian;
 mod mlp;

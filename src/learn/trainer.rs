@@ -15,12 +15,13 @@ use super::checkpoint;
 use super::config::PpoConfig;
 use super::env::Environment;
 use super::error::LearnError;
+use super::fused::{self, FusedWorkspace};
 use super::gaussian::{fill_standard_normal, log_prob};
 use super::mlp::Mlp;
 use super::normalize::{ObsNormalizer, RewardScaler, RunningMoments};
 use super::observer::{EpisodeEnd, IterationStats, Observer};
 use super::policy::{Policy, Scratch};
-use super::ppo::{loss_and_grads, Minibatch};
+use super::ppo::{loss_and_grads, Minibatch, MinibatchResult};
 use super::threads::pin_kernel_threads;
 
 /// Orthogonal-initialisation gains (common practice): sqrt(2) on hidden layers, 0.01 on the
@@ -48,6 +49,11 @@ pub struct Trainer {
     iteration: u64,
     obs_dim: usize,
     act_dim: usize,
+    /// Update buffers, reused across minibatches and iterations.
+    minibatch: Minibatch,
+    fused_ws: FusedWorkspace,
+    result: MinibatchResult,
+    perm: Vec<usize>,
 }
 
 /// Per-rollout tallies.
@@ -149,6 +155,10 @@ impl Trainer {
             iteration: 0,
             obs_dim,
             act_dim,
+            minibatch: Minibatch::default(),
+            fused_ws: FusedWorkspace::default(),
+            result: fused::empty_result(),
+            perm: Vec::new(),
         })
     }
 
@@ -383,8 +393,11 @@ impl Trainer {
 
     fn update(&mut self, lr: f64) -> Result<IterationStats, LearnError> {
         let n = self.buf.len();
-        let mut perm: Vec<usize> = (0..n).collect();
-        let mut mb = Minibatch::default();
+        let mut perm = std::mem::take(&mut self.perm);
+        perm.clear();
+        perm.extend(0..n);
+        let mut mb = std::mem::take(&mut self.minibatch);
+        let mut r = std::mem::replace(&mut self.result, fused::empty_result());
         let mut s = IterationStats::default();
         let eps = self.cfg.clip_epsilon as f32;
         let (mut steps, mut samples) = (0u64, 0u64);
@@ -392,7 +405,18 @@ impl Trainer {
             perm.shuffle(&mut self.rng);
             for chunk in perm.chunks(self.cfg.minibatch_size) {
                 self.gather(chunk, &mut mb);
-                let mut r = loss_and_grads(&self.policy, &self.critic, &mb, &self.cfg)?;
+                if self.cfg.fused_update {
+                    fused::loss_and_grads_into(
+                        &self.policy,
+                        &self.critic,
+                        &mb,
+                        &self.cfg,
+                        &mut self.fused_ws,
+                        &mut r,
+                    );
+                } else {
+                    r = loss_and_grads(&self.policy, &self.critic, &mb, &self.cfg)?;
+                }
                 let diverged = |what: &str| LearnError::Diverged {
                     iteration: self.iteration,
                     reason: format!("non-finite {what}"),
@@ -441,6 +465,9 @@ impl Trainer {
         s.value_grad_norm /= k;
         s.approx_kl /= samples as f64;
         s.clip_fraction /= samples as f64;
+        self.perm = perm;
+        self.minibatch = mb;
+        self.result = r;
         Ok(s)
     }
 

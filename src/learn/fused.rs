@@ -1,0 +1,469 @@
+//! The fused update path: the PPO loss of one minibatch and its gradients computed by hand over
+//! contiguous f32 buffers — batched forward of both networks, the loss head (clipped surrogate,
+//! value loss, entropy) and backpropagation — with the matrix products done by the `gemm` crate
+//! (the engine candle's CPU backend uses, single-threaded here) and no allocation once the
+//! workspace has grown to the minibatch size.
+//!
+//! It computes exactly the loss of [`super::ppo::loss_and_grads`] (the generic candle autograd
+//! path): the same formulas, the same fast tanh, the same sub-gradients where a `min`, `max` or
+//! clamp is tied (candle splits a tie evenly between its arguments). A test checks that both
+//! give the same losses and gradients within 1e-5; the candle path is in turn checked against
+//! central finite differences.
+//!
+//! Backpropagation through a layer `Z = H W^T + 1 b^T`, `H' = tanh(Z)` (the chain rule; e.g.
+//! Goodfellow, Bengio, Courville, "Deep Learning", 2016, section 6.5): `dW = dZ^T H`,
+//! `db = 1^T dZ`, `dH = dZ W`, `dZ_prev = dH * (1 - H^2)`.
+
+use super::activation::tanh_fast;
+use super::config::PpoConfig;
+use super::gaussian::HALF_LN_2PI;
+use super::mlp::Mlp;
+use super::policy::{Policy, LOG_STD_MAX, LOG_STD_MIN};
+use super::ppo::{Minibatch, MinibatchResult};
+
+/// Index one past the last element a strided `rows x cols` view touches.
+fn span(rows: usize, cols: usize, rs: usize, cs: usize) -> usize {
+    if rows == 0 || cols == 0 {
+        0
+    } else {
+        (rows - 1) * rs + (cols - 1) * cs + 1
+    }
+}
+
+/// `C = A B` (or `C += A B` with `accumulate`), `C` row-major m x n, `A` an m x k view with row
+/// and column strides `(a_rs, a_cs)`, `B` a k x n view with strides `(b_rs, b_cs)`. The strides
+/// let transposed operands be read in place.
+#[allow(clippy::too_many_arguments)]
+fn matmul(
+    (m, n, k): (usize, usize, usize),
+    c: &mut [f32],
+    accumulate: bool,
+    a: &[f32],
+    (a_rs, a_cs): (usize, usize),
+    b: &[f32],
+    (b_rs, b_cs): (usize, usize),
+) {
+    assert!(span(m, n, n, 1) <= c.len(), "matmul: C out of bounds");
+    assert!(span(m, k, a_rs, a_cs) <= a.len(), "matmul: A out of bounds");
+    assert!(span(k, n, b_rs, b_cs) <= b.len(), "matmul: B out of bounds");
+    if m == 0 || n == 0 {
+        return;
+    }
+    if k == 0 {
+        if !accumulate {
+            c[..m * n].fill(0.0);
+        }
+        return;
+    }
+    // SAFETY: the asserts above keep every element gemm reads or writes inside the slices; `c`
+    // is borrowed mutably, so it does not alias `a` or `b`.
+    unsafe {
+        gemm::gemm(
+            m,
+            n,
+            k,
+            c.as_mut_ptr(),
+            1,
+            n as isize,
+            accumulate,
+            a.as_ptr(),
+            a_cs as isize,
+            a_rs as isize,
+            b.as_ptr(),
+            b_cs as isize,
+            b_rs as isize,
+            1.0,
+            1.0,
+            false,
+            false,
+            false,
+            gemm::Parallelism::None,
+        );
+    }
+}
+
+/// Per-network buffers for one minibatch.
+#[derive(Clone, Debug, Default)]
+struct NetBuffers {
+    /// Layer outputs (n x width): tanh'd for hidden layers, linear for the last.
+    acts: Vec<Vec<f32>>,
+    /// Gradient with respect to the current layer's pre-activation, and the one below.
+    dz: Vec<f32>,
+    dz_below: Vec<f32>,
+}
+
+/// Reusable buffers of the fused path (grow to the largest minibatch seen, then stay).
+#[derive(Clone, Debug, Default)]
+pub struct FusedWorkspace {
+    actor: NetBuffers,
+    critic: NetBuffers,
+    /// Gradient of the loss with respect to the network outputs (n x out).
+    d_out: Vec<f32>,
+}
+
+/// Batched forward of `m` on `x` (n rows), filling `bufs.acts`.
+fn forward(m: &Mlp, x: &[f32], n: usize, bufs: &mut NetBuffers) {
+    let last = m.layers.len() - 1;
+    bufs.acts.resize_with(m.layers.len(), Vec::new);
+    for (l, layer) in m.layers.iter().enumerate() {
+        let (below, rest) = bufs.acts.split_at_mut(l);
+        let input: &[f32] = if l == 0 { x } else { &below[l - 1] };
+        let out = &mut rest[0];
+        out.resize(n * layer.n_out, 0.0);
+        for row in out.chunks_exact_mut(layer.n_out) {
+            row.copy_from_slice(&layer.b);
+        }
+        // Z = H W^T + 1 b^T; W^T (n_in x n_out) is W read with strides (1, n_in).
+        matmul(
+            (n, layer.n_out, layer.n_in),
+            out,
+            true,
+            input,
+            (layer.n_in, 1),
+            &layer.w,
+            (1, layer.n_in),
+        );
+        if l < last {
+            out.iter_mut().for_each(|v| *v = tanh_fast(*v));
+        }
+    }
+}
+
+/// Backpropagate `bufs.dz` (the gradient at the network output, n x out) through `m`, writing
+/// the parameter gradients (w0, b0, w1, b1, ...) into `grads`.
+fn backward(m: &Mlp, x: &[f32], n: usize, bufs: &mut NetBuffers, grads: &mut [Vec<f32>]) {
+    for l in (0..m.layers.len()).rev() {
+        let layer = &m.layers[l];
+        let input: &[f32] = if l == 0 { x } else { &bufs.acts[l - 1] };
+        let (gw, gb) = {
+            let (a, b) = grads[2 * l..2 * l + 2].split_at_mut(1);
+            (&mut a[0], &mut b[0])
+        };
+        gw.resize(layer.n_out * layer.n_in, 0.0);
+        gb.resize(layer.n_out, 0.0);
+        // dW = dZ^T H: dZ^T (n_out x n) is dZ read with strides (1, n_out).
+        matmul(
+            (layer.n_out, layer.n_in, n),
+            gw,
+            false,
+            &bufs.dz,
+            (1, layer.n_out),
+            input,
+            (layer.n_in, 1),
+        );
+        gb.fill(0.0);
+        for row in bufs.dz.chunks_exact(layer.n_out).take(n) {
+            gb.iter_mut().zip(row).for_each(|(g, d)| *g += d);
+        }
+        if l > 0 {
+            bufs.dz_below.resize(n * layer.n_in, 0.0);
+            // dH = dZ W, then through tanh: dZ_below = dH (1 - H^2).
+            matmul(
+                (n, layer.n_in, layer.n_out),
+                &mut bufs.dz_below,
+                false,
+                &bufs.dz,
+                (layer.n_out, 1),
+                &layer.w,
+                (layer.n_in, 1),
+            );
+            for (d, &h) in bufs.dz_below.iter_mut().zip(&bufs.acts[l - 1]) {
+                *d *= 1.0 - h * h;
+            }
+            std::mem::swap(&mut bufs.dz, &mut bufs.dz_below);
+        }
+    }
+}
+
+/// Share of the gradient a `min`/`max`/clamp passes to an argument, as candle's autograd does:
+/// 1 when the argument is the unique winner, 1/2 on a tie, 0 otherwise.
+#[inline]
+fn band_mask(x: f32, lo: f32, hi: f32) -> f32 {
+    // clamp(x, lo, hi) = min(max(x, lo), hi).
+    let after_max = if x > lo {
+        1.0
+    } else if x == lo {
+        0.5
+    } else {
+        0.0
+    };
+    let y = x.max(lo);
+    let after_min = if y < hi {
+        1.0
+    } else if y == hi {
+        0.5
+    } else {
+        0.0
+    };
+    after_max * after_min
+}
+
+/// Gradient shares of `min(u, c)` (or of `max` with `prefer_larger`) to `u` and to `c`.
+#[inline]
+fn pick(u: f32, c: f32, prefer_larger: bool) -> (f32, f32) {
+    let u_wins = if prefer_larger { u > c } else { u < c };
+    if u == c {
+        (0.5, 0.5)
+    } else if u_wins {
+        (1.0, 0.0)
+    } else {
+        (0.0, 1.0)
+    }
+}
+
+/// Size `grads` to one vector per tensor (no allocation once the sizes are reached).
+fn reset_grads(grads: &mut Vec<Vec<f32>>, sizes: impl Iterator<Item = usize> + Clone) {
+    grads.resize_with(sizes.clone().count(), Vec::new);
+    for (g, n) in grads.iter_mut().zip(sizes) {
+        g.resize(n, 0.0);
+    }
+}
+
+/// The PPO loss of [`super::ppo::loss_and_grads`] and its gradients, by the fused path, written
+/// into `out` (whose vectors are reused).
+pub fn loss_and_grads_into(
+    policy: &Policy,
+    critic: &Mlp,
+    mb: &Minibatch,
+    cfg: &PpoConfig,
+    ws: &mut FusedWorkspace,
+    out: &mut MinibatchResult,
+) {
+    let (n, a) = (mb.len, policy.act_dim());
+    let obs = &mb.obs[..n * policy.obs_dim()];
+    let state_dependent = policy.log_std.is_empty();
+    let a_out = policy.actor.output_dim();
+    let inv_n = 1.0 / n as f32;
+    let eps = cfg.clip_epsilon;
+    let (lo, hi) = ((1.0 - eps) as f32, (1.0 + eps) as f32);
+    let (c1, c2) = (cfg.value_coef as f32, cfg.entropy_coef as f32);
+
+    forward(&policy.actor, obs, n, &mut ws.actor);
+    forward(critic, obs, n, &mut ws.critic);
+
+    // Parameter gradient buffers: actor w/b per layer, then the log std if learned apart.
+    reset_grads(
+        &mut out.policy_grads,
+        policy
+            .actor
+            .layers
+            .iter()
+            .flat_map(|l| [l.w.len(), l.b.len()])
+            .chain((!state_dependent).then_some(a)),
+    );
+    reset_grads(
+        &mut out.value_grads,
+        critic.layers.iter().flat_map(|l| [l.w.len(), l.b.len()]),
+    );
+    out.ratios.clear();
+
+    // Policy head.
+    let mean_out = ws.actor.acts.last().expect("actor has layers");
+    ws.d_out.clear();
+    ws.d_out.resize(n * a_out, 0.0);
+    let n_tensors = out.policy_grads.len();
+    let mut g_log_std = if state_dependent {
+        Vec::new()
+    } else {
+        let mut g = std::mem::take(&mut out.policy_grads[n_tensors - 1]);
+        g.fill(0.0);
+        g
+    };
+    let (mut surrogate_sum, mut entropy_sum) = (0.0f64, 0.0f64);
+    for i in 0..n {
+        let row = &mean_out[i * a_out..(i + 1) * a_out];
+        let act = &mb.actions[i * a..(i + 1) * a];
+        let mut logp = 0.0f32;
+        for j in 0..a {
+            let ls = if state_dependent {
+                row[a + j].clamp(LOG_STD_MIN, LOG_STD_MAX)
+            } else {
+                policy.log_std[j]
+            };
+            let z = (act[j] - row[j]) * (-ls).exp();
+            logp += -0.5 * z * z - ls;
+            if state_dependent {
+                entropy_sum += ls as f64;
+            }
+        }
+        logp -= (HALF_LN_2PI * a as f64) as f32;
+        let ratio = (logp - mb.old_log_probs[i]).exp();
+        out.ratios.push(ratio);
+        let adv = mb.advantages[i];
+        let unclipped = ratio * adv;
+        let clipped = ratio.clamp(lo, hi) * adv;
+        surrogate_sum += unclipped.min(clipped) as f64;
+        let (to_u, to_c) = pick(unclipped, clipped, false);
+        let d_ratio = adv * (to_u + to_c * band_mask(ratio, lo, hi));
+        // loss = -mean(surrogate): d loss / d logp_i = -(1/n) d_ratio * ratio.
+        let d_logp = -inv_n * d_ratio * ratio;
+        let d_row = &mut ws.d_out[i * a_out..(i + 1) * a_out];
+        for j in 0..a {
+            let raw_ls = if state_dependent {
+                row[a + j]
+            } else {
+                policy.log_std[j]
+            };
+            let ls = if state_dependent {
+                raw_ls.clamp(LOG_STD_MIN, LOG_STD_MAX)
+            } else {
+                raw_ls
+            };
+            let inv_sigma = (-ls).exp();
+            let z = (act[j] - row[j]) * inv_sigma;
+            // d logp / d mean = z / sigma; d logp / d log sigma = z^2 - 1.
+            d_row[j] = d_logp * z * inv_sigma;
+            let d_ls = d_logp * (z * z - 1.0);
+            if state_dependent {
+                // Entropy mean over rows: d(-c2 H)/d ls_ij = -c2 / n.
+                d_row[a + j] = (d_ls - c2 * inv_n) * band_mask(raw_ls, LOG_STD_MIN, LOG_STD_MAX);
+            } else {
+                g_log_std[j] += d_ls;
+            }
+        }
+    }
+    let entropy_const = a as f64 * (0.5 + HALF_LN_2PI);
+    let entropy = if state_dependent {
+        entropy_sum / n as f64 + entropy_const
+    } else {
+        g_log_std.iter_mut().for_each(|g| *g -= c2);
+        policy.log_std.iter().map(|&l| l as f64).sum::<f64>() + entropy_const
+    };
+    if !state_dependent {
+        out.policy_grads[n_tensors - 1] = g_log_std;
+    }
+    std::mem::swap(&mut ws.actor.dz, &mut ws.d_out);
+    backward(
+        &policy.actor,
+        obs,
+        n,
+        &mut ws.actor,
+        &mut out.policy_grads[..2 * policy.actor.layers.len()],
+    );
+
+    // Value head: loss c1 * mean(per_sample) / 2.
+    let values = ws.critic.acts.last().expect("critic has layers");
+    ws.d_out.clear();
+    ws.d_out.resize(n, 0.0);
+    let mut value_sum = 0.0f64;
+    let scale = c1 * 0.5 * inv_n;
+    for i in 0..n {
+        let (v, t) = (values[i], mb.targets[i]);
+        let sq = (v - t) * (v - t);
+        let d = if cfg.clip_value_loss {
+            let ov = mb.old_values[i];
+            let (elo, ehi) = (-eps as f32, eps as f32);
+            let vc = ov + (v - ov).clamp(elo, ehi);
+            let sqc = (vc - t) * (vc - t);
+            value_sum += sq.max(sqc) as f64;
+            let (to_sq, to_c) = pick(sq, sqc, true);
+            to_sq * 2.0 * (v - t) + to_c * 2.0 * (vc - t) * band_mask(v - ov, elo, ehi)
+        } else {
+            value_sum += sq as f64;
+            2.0 * (v - t)
+        };
+        ws.d_out[i] = scale * d;
+    }
+    std::mem::swap(&mut ws.critic.dz, &mut ws.d_out);
+    backward(critic, obs, n, &mut ws.critic, &mut out.value_grads);
+
+    out.policy_loss = (-surrogate_sum / n as f64) as f32;
+    out.value_loss = (0.5 * value_sum / n as f64) as f32;
+    out.entropy = entropy as f32;
+}
+
+/// A fresh, empty result to pass to [`loss_and_grads_into`].
+pub fn empty_result() -> MinibatchResult {
+    MinibatchResult {
+        policy_loss: 0.0,
+        value_loss: 0.0,
+        entropy: 0.0,
+        ratios: Vec::new(),
+        policy_grads: Vec::new(),
+        value_grads: Vec::new(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::ppo::{cases, loss_and_grads};
+    use super::*;
+
+    /// |x - y| <= 1e-5 * max(1, scale): absolute for O(1) values, relative for larger tensors.
+    fn close(x: f32, y: f32, scale: f32) -> bool {
+        (x - y).abs() <= 1e-5 * scale.max(1.0)
+    }
+
+    #[test]
+    fn fused_path_matches_the_candle_path() {
+        // The fused path must compute the same loss and gradients as candle's autograd (the
+        // generic path, itself checked against finite differences in ppo.rs) on random inputs:
+        // several shapes, both std variants, the optional loss parts on and off.
+        let plain = PpoConfig::default();
+        let shapes: [&[usize]; 3] = [&[23, 64, 64, 2], &[7, 16, 16, 16, 3], &[5, 9, 1]];
+        let mut ws = FusedWorkspace::default();
+        let mut got = empty_result();
+        let mut checked = 0;
+        for (k, sizes) in shapes.iter().enumerate() {
+            for sd in [false, true] {
+                for cfg in [plain.clone(), cases::full_loss()] {
+                    let n = [256, 37, 1][k];
+                    let c = cases::random_case(100 + k as u64, sizes, n, sd, cfg);
+                    let want = loss_and_grads(&c.policy, &c.critic, &c.mb, &c.cfg).unwrap();
+                    // The same workspace across cases of different shapes: it must resize.
+                    loss_and_grads_into(&c.policy, &c.critic, &c.mb, &c.cfg, &mut ws, &mut got);
+                    let ctx = format!("shape {sizes:?} sd {sd} clip {}", c.cfg.clip_value_loss);
+                    assert!(close(got.policy_loss, want.policy_loss, 1.0), "{ctx}");
+                    assert!(
+                        close(got.value_loss, want.value_loss, want.value_loss.abs()),
+                        "{ctx}"
+                    );
+                    assert!(
+                        close(got.entropy, want.entropy, want.entropy.abs()),
+                        "{ctx}"
+                    );
+                    for (x, y) in got.ratios.iter().zip(&want.ratios) {
+                        assert!(close(*x, *y, y.abs()), "{ctx}: ratio {x} vs {y}");
+                    }
+                    for (gs, ws_) in [
+                        (&got.policy_grads, &want.policy_grads),
+                        (&got.value_grads, &want.value_grads),
+                    ] {
+                        assert_eq!(gs.len(), ws_.len(), "{ctx}");
+                        for (t, (g, w)) in gs.iter().zip(ws_).enumerate() {
+                            assert_eq!(g.len(), w.len(), "{ctx} tensor {t}");
+                            let scale = w.iter().fold(0.0f32, |m, x| m.max(x.abs()));
+                            for (i, (x, y)) in g.iter().zip(w).enumerate() {
+                                assert!(close(*x, *y, scale), "{ctx} tensor {t}[{i}]: {x} vs {y}");
+                            }
+                        }
+                    }
+                    checked += 1;
+                }
+            }
+        }
+        assert_eq!(checked, 12);
+    }
+
+    #[test]
+    fn workspace_stops_allocating_after_the_first_minibatch() {
+        let c = cases::random_case(5, &[23, 64, 64, 2], 256, false, PpoConfig::default());
+        let mut ws = FusedWorkspace::default();
+        let mut out = empty_result();
+        loss_and_grads_into(&c.policy, &c.critic, &c.mb, &c.cfg, &mut ws, &mut out);
+        let ptrs = |ws: &FusedWorkspace, out: &MinibatchResult| {
+            let mut v: Vec<*const f32> = ws.actor.acts.iter().map(|a| a.as_ptr()).collect();
+            v.extend(
+                out.policy_grads
+                    .iter()
+                    .chain(&out.value_grads)
+                    .map(|g| g.as_ptr()),
+            );
+            v.push(out.ratios.as_ptr());
+            v
+        };
+        let before = ptrs(&ws, &out);
+        loss_and_grads_into(&c.policy, &c.critic, &c.mb, &c.cfg, &mut ws, &mut out);
+        assert_eq!(before, ptrs(&ws, &out));
+    }
+}
