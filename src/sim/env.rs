@@ -538,11 +538,11 @@ impl ArmEnv {
         r
     }
 
-    /// Length of the physical observation vector: cos/sin q (2n), scaled dq (n), effector (2), goal - effector (2),
-    /// goal distance (1), nearest obstacles (4 each: relative x, y, radius, clearance), previous action (n),
-    /// joint-space goal direction J^T (goal - effector) (n).
+    /// Length of the physical observation vector: cos/sin q (2n), q within its limits (n), scaled dq (n), effector
+    /// (2), goal - effector (2), goal distance (1), nearest obstacles (4 each: relative x, y, radius, clearance),
+    /// previous action (n), joint-space goal direction J^T (goal - effector) (n).
     pub fn obs_dim(&self) -> usize {
-        5 * self.n() + 5 + 4 * OBS_OBSTACLES
+        6 * self.n() + 5 + 4 * OBS_OBSTACLES
     }
 
     /// Write the physical observation (lengths scaled by the arm's reach, speeds by their limits).
@@ -555,6 +555,19 @@ impl ArmEnv {
             out[k] = s.q[i].cos() as f32;
             out[k + 1] = s.q[i].sin() as f32;
             k += 2;
+        }
+        // Where each joint sits between its stops, -1 at q_min and +1 at q_max (0 for a joint without finite
+        // stops): cos/sin alone cannot tell the policy which way is blocked. Measured on the random-goal reach
+        // (tests/learn_reach.rs): without it the failures were arms pressed into a stop of joint 1, the goal lying
+        // beyond it (the way round is the long one).
+        for (i, l) in self.sc.arm.links.iter().enumerate() {
+            out[k] = if l.q_min.is_finite() && l.q_max.is_finite() && l.q_max > l.q_min {
+                let mid = 0.5 * (l.q_min + l.q_max);
+                ((s.q[i] - mid) / (0.5 * (l.q_max - l.q_min))) as f32
+            } else {
+                0.0
+            };
+            k += 1;
         }
         for (i, l) in self.sc.arm.links.iter().enumerate() {
             let scale = if l.v_max.is_finite() { l.v_max } else { 10.0 };
