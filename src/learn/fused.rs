@@ -101,6 +101,20 @@ pub struct FusedWorkspace {
     d_out: Vec<f32>,
 }
 
+/// Buffers for batched inference of one network (the rollout's policy and value passes over all
+/// environments at once); they grow to the largest batch and then stay.
+#[derive(Clone, Debug, Default)]
+pub(crate) struct BatchForward(NetBuffers);
+
+impl BatchForward {
+    /// Outputs of `m` for the `n` rows of `x` (row-major `n x input_dim`), row-major
+    /// `n x output_dim`: the same products and fast tanh as the update's forward pass.
+    pub(crate) fn run(&mut self, m: &Mlp, x: &[f32], n: usize) -> &[f32] {
+        forward(m, x, n, &mut self.0);
+        &self.0.acts[m.layers.len() - 1][..n * m.output_dim()]
+    }
+}
+
 /// Batched forward of `m` on `x` (n rows), filling `bufs.acts`.
 fn forward(m: &Mlp, x: &[f32], n: usize, bufs: &mut NetBuffers) {
     let last = m.layers.len() - 1;
@@ -392,6 +406,26 @@ mod tests {
     /// |x - y| <= 1e-5 * max(1, scale): absolute for O(1) values, relative for larger tensors.
     fn close(x: f32, y: f32, scale: f32) -> bool {
         (x - y).abs() <= 1e-5 * scale.max(1.0)
+    }
+
+    #[test]
+    fn batched_rollout_forward_matches_the_per_sample_forward() {
+        // The rollout runs both networks over all environments in one gemm batch; the result
+        // must be the per-sample `Mlp::forward` (plain dot products) up to summation order.
+        let c = cases::random_case(7, &[25, 64, 64, 2], 16, false, PpoConfig::default());
+        let mut bf = BatchForward::default();
+        for net in [&c.policy.actor, &c.critic] {
+            let out_dim = net.output_dim();
+            let got = bf.run(net, &c.mb.obs, 16).to_vec();
+            assert_eq!(got.len(), 16 * out_dim);
+            let mut want = vec![0.0; out_dim];
+            for (r, x) in c.mb.obs.chunks_exact(25).enumerate() {
+                net.forward_alloc(x, &mut want);
+                for (g, w) in got[r * out_dim..(r + 1) * out_dim].iter().zip(&want) {
+                    assert!(close(*g, *w, w.abs()), "row {r}: {g} vs {w}");
+                }
+            }
+        }
     }
 
     #[test]

@@ -67,11 +67,9 @@ impl Policy {
         &self.norm
     }
 
-    /// Mean and log std for an already normalised observation; the mean lands in
-    /// `scratch.out[..act_dim]`, the log std in `log_std_out`.
-    pub(crate) fn dist(&self, norm_obs: &[f32], scratch: &mut Scratch, log_std_out: &mut [f32]) {
-        let Scratch { s0, s1, out, .. } = scratch;
-        self.actor.forward(norm_obs, s0, s1, out);
+    /// The log std for one row `out` of the policy network's output: its clamped second head
+    /// (state-dependent std) or the learned parameter vector.
+    pub(crate) fn log_std_into(&self, out: &[f32], log_std_out: &mut [f32]) {
         if self.log_std.is_empty() {
             for (d, &l) in log_std_out.iter_mut().zip(&out[self.act_dim..]) {
                 *d = l.clamp(LOG_STD_MIN, LOG_STD_MAX);

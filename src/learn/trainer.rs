@@ -15,7 +15,7 @@ use super::checkpoint;
 use super::config::PpoConfig;
 use super::env::Environment;
 use super::error::LearnError;
-use super::fused::{self, FusedWorkspace};
+use super::fused::{self, BatchForward, FusedWorkspace};
 use super::gaussian::{fill_standard_normal, log_prob};
 use super::mlp::Mlp;
 use super::normalize::{ObsNormalizer, RewardScaler, RunningMoments};
@@ -53,6 +53,11 @@ pub struct Trainer {
     minibatch: Minibatch,
     fused_ws: FusedWorkspace,
     result: MinibatchResult,
+    /// Rollout buffers: the normalised observations of all environments at one step (E x obs)
+    /// and the batched policy and value passes over them.
+    step_obs: Vec<f32>,
+    step_actor: BatchForward,
+    step_critic: BatchForward,
     perm: Vec<usize>,
 }
 
@@ -157,6 +162,9 @@ impl Trainer {
             act_dim,
             minibatch: Minibatch::default(),
             fused_ws: FusedWorkspace::default(),
+            step_obs: Vec::new(),
+            step_actor: BatchForward::default(),
+            step_critic: BatchForward::default(),
             result: fused::empty_result(),
             perm: Vec::new(),
         })
@@ -280,10 +288,14 @@ impl Trainer {
         let mut clipped = vec![0.0f32; a_dim];
         let mut final_norm = vec![0.0f32; o_dim];
         let mut tally = RolloutTally::default();
+        let n_env = self.cfg.num_envs;
+        let out_dim = self.policy.actor.output_dim();
+        self.step_obs.resize(n_env * o_dim, 0.0);
         for t in 0..self.cfg.rollout_steps {
-            for e in 0..self.cfg.num_envs {
-                let i = self.buf.index(e, t);
-                let raw = &mut self.raw_obs[e * o_dim..(e + 1) * o_dim];
+            // Normalise every environment's observation (the statistics stay frozen during the
+            // rollout), then run the policy and value networks over all of them in one batch.
+            for e in 0..n_env {
+                let raw = &self.raw_obs[e * o_dim..(e + 1) * o_dim];
                 if raw.iter().any(|x| !x.is_finite()) {
                     return Err(LearnError::Diverged {
                         iteration: self.iteration,
@@ -293,18 +305,29 @@ impl Trainer {
                 if self.cfg.normalize_obs {
                     self.obs_stats.push(raw);
                 }
-                let norm = &mut self.buf.obs[i * o_dim..(i + 1) * o_dim];
+                let norm = &mut self.step_obs[e * o_dim..(e + 1) * o_dim];
                 self.policy.norm.apply(raw, norm);
-                self.policy.dist(norm, &mut sc, &mut log_std);
-                let value = Self::value_of(&self.critic, norm, &mut sc);
+                let i = self.buf.index(e, t);
+                self.buf.obs[i * o_dim..(i + 1) * o_dim].copy_from_slice(norm);
+            }
+            let means = self
+                .step_actor
+                .run(&self.policy.actor, &self.step_obs, n_env);
+            let values = self.step_critic.run(&self.critic, &self.step_obs, n_env);
+            for e in 0..n_env {
+                let i = self.buf.index(e, t);
+                let raw = &mut self.raw_obs[e * o_dim..(e + 1) * o_dim];
+                let out = &means[e * out_dim..(e + 1) * out_dim];
+                self.policy.log_std_into(out, &mut log_std);
+                let value = values[e];
                 fill_standard_normal(&mut self.rng, &mut noise);
                 for k in 0..a_dim {
                     let std = log_std[k].exp();
                     tally.std_sum += std as f64;
-                    sample[k] = sc.out[k] + std * noise[k];
+                    sample[k] = out[k] + std * noise[k];
                     clipped[k] = sample[k].clamp(-1.0, 1.0);
                 }
-                self.buf.log_probs[i] = log_prob(&sample, &sc.out[..a_dim], &log_std);
+                self.buf.log_probs[i] = log_prob(&sample, &out[..a_dim], &log_std);
                 self.buf.actions[i * a_dim..(i + 1) * a_dim].copy_from_slice(&sample);
                 self.buf.values[i] = value;
                 let tr = self.envs[e].step(&clipped, raw);
