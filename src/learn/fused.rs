@@ -411,7 +411,8 @@ mod tests {
     #[test]
     fn batched_rollout_forward_matches_the_per_sample_forward() {
         // The rollout runs both networks over all environments in one gemm batch; the result
-        // must be the per-sample `Mlp::forward` (plain dot products) up to summation order.
+        // must be the per-sample `Mlp::forward` (plain dot products) up to summation order; that
+        // reference is itself checked against a hand-computed network in mlp.rs.
         let c = cases::random_case(7, &[25, 64, 64, 2], 16, false, PpoConfig::default());
         let mut bf = BatchForward::default();
         for net in [&c.policy.actor, &c.critic] {
