@@ -14,7 +14,11 @@ use std::sync::{Arc, Mutex};
 /// Metrics of one finished episode.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct EpisodeMetrics {
+    /// Clean success: the goal region was reached and no contact happened in the episode.
     pub success: bool,
+    /// The goal region was reached (contact allowed).
+    pub reached: bool,
+    /// Some step of the episode had the arm in contact (obstacle, boundary or itself).
     pub collided: bool,
     /// Time at which the goal was reached, s (None when it was not).
     pub time_to_goal: Option<f64>,
@@ -209,7 +213,8 @@ impl Episode {
         let n = self.sim.n() as f64;
         let steps = a.steps.max(1) as f64;
         EpisodeMetrics {
-            success: a.time_to_goal.is_some(),
+            success: a.time_to_goal.is_some() && !a.collided,
+            reached: a.time_to_goal.is_some(),
             collided: a.collided,
             time_to_goal: a.time_to_goal,
             ret: a.ret,
@@ -350,7 +355,10 @@ pub fn run_episode(
 /// Means over a set of evaluation episodes (the columns of progress.csv and terms.csv).
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct EvalSummary {
+    /// Fraction of episodes with clean success (goal reached, no contact).
     pub success_rate: f64,
+    /// Fraction of episodes that reached the goal, contact allowed.
+    pub reached_rate: f64,
     pub mean_return: f64,
     /// Mean over successful episodes, s (NaN when none succeeded).
     pub time_to_goal: f64,
@@ -375,6 +383,7 @@ impl EvalSummary {
         let n_terms = eps.first().map(|e| e.terms.len()).unwrap_or(0);
         EvalSummary {
             success_rate: mean(&|e| e.success as u8 as f64),
+            reached_rate: mean(&|e| e.reached as u8 as f64),
             mean_return: mean(&|e| e.ret),
             time_to_goal: if succ.is_empty() {
                 f64::NAN
