@@ -7,6 +7,7 @@ use super::geometry::{
     capsule_boundary_clearance, capsule_capsule_distance, capsule_shape_distance, dist, Capsule,
     Shape,
 };
+use super::contact::{self, ContactMode, Surroundings};
 use super::scenario::{ControlMode, Integrator, Motion, Scenario};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -71,6 +72,23 @@ pub struct StepReport {
     pub obstacle_moved: bool,
 }
 
+/// Velocity of an obstacle with motion `m` at time t, m/s (`linear` is the current velocity of a linear one).
+fn obstacle_velocity(m: &Motion, linear: [f64; 2], t: f64) -> [f64; 2] {
+    match *m {
+        Motion::Still => [0.0; 2],
+        Motion::Linear { .. } => linear,
+        Motion::Sine {
+            amplitude,
+            period,
+            phase,
+        } => {
+            let w = 2.0 * std::f64::consts::PI / period;
+            let c = (w * t + phase).cos();
+            [amplitude[0] * w * c, amplitude[1] * w * c]
+        }
+    }
+}
+
 /// One episode of the arm in its scenario.
 #[derive(Clone, Debug)]
 pub struct ArmEnv {
@@ -81,6 +99,10 @@ pub struct ArmEnv {
     goal: [f64; 2],
     shapes: Vec<Shape>,
     velocities: Vec<[f64; 2]>,
+    /// Current velocity of each obstacle, m/s (what a solid contact with it must match along the normal).
+    shape_vels: Vec<[f64; 2]>,
+    /// Sum of the generalised contact impulses J^T lambda over the last control step, N m s per joint.
+    contact_impulse: JointVec,
     planned_centres: Vec<[f64; 2]>,
     active_obstacles: usize,
     jump_rate: f64,
@@ -112,6 +134,8 @@ impl ArmEnv {
             goal: sc.goal,
             shapes: sc.obstacles.iter().map(|o| o.shape).collect(),
             velocities: vec![[0.0; 2]; n_obs],
+            shape_vels: vec![[0.0; 2]; n_obs],
+            contact_impulse: [0.0; MAX_JOINTS],
             planned_centres: vec![[0.0; 2]; n_obs],
             active_obstacles: n_obs,
             jump_rate: sc.events.goal_jump_rate,
@@ -152,6 +176,38 @@ impl ArmEnv {
     pub fn last_report(&self) -> StepReport {
         self.last.expect("reset always sets a report")
     }
+    /// The generalised contact impulse J^T lambda summed over the last control step, N m s per joint (zero in
+    /// pass-through mode or without contact). Divided by the control step it is the mean contact torque.
+    pub fn contact_impulse(&self) -> &JointVec {
+        &self.contact_impulse
+    }
+
+    /// Current obstacle velocities, m/s (only the active ones).
+    pub fn obstacle_velocities(&self) -> &[[f64; 2]] {
+        &self.shape_vels[..self.active_obstacles]
+    }
+
+    /// Resolve solid contact at state `s` with the obstacles where they are now (no-op in pass-through mode
+    /// and without contact). Adds the impulse to `contact_impulse`.
+    fn resolve_contact(&mut self, s: &mut ArmState) {
+        if self.sc.contact != ContactMode::Solid {
+            return;
+        }
+        let world = Surroundings {
+            shapes: &self.shapes[..self.active_obstacles],
+            velocities: &self.shape_vels[..self.active_obstacles],
+            workspace_min: self.sc.workspace_min,
+            workspace_max: self.sc.workspace_max,
+            self_collision: self.sc.self_collision,
+        };
+        let (gen, touched) = contact::resolve(&self.sc.arm, &world, &mut s.q, &mut s.dq);
+        if touched {
+            for (c, g) in self.contact_impulse.iter_mut().zip(gen) {
+                *c += g;
+            }
+        }
+    }
+
     /// Per-joint action limit in physical units (tau_max in torque mode, acc_max in acceleration mode).
     pub fn action_limits(&self) -> &[f64] {
         &self.action_limits
@@ -180,7 +236,9 @@ impl ArmEnv {
                 Motion::Linear { velocity } => velocity,
                 _ => [0.0; 2],
             };
+            self.shape_vels[i] = obstacle_velocity(&o.motion, self.velocities[i], 0.0);
         }
+        self.contact_impulse = [0.0; MAX_JOINTS];
         self.mark_planned();
         self.event_rng = ChaCha8Rng::seed_from_u64(event_seed);
         self.next_timed_jump = 0;
@@ -381,6 +439,7 @@ impl ArmEnv {
     fn move_obstacles(&mut self, t: f64, dt: f64) {
         for i in 0..self.active_obstacles {
             let o = &self.sc.obstacles[i];
+            self.shape_vels[i] = obstacle_velocity(&o.motion, self.velocities[i], t);
             match o.motion {
                 Motion::Still => {}
                 Motion::Sine {
@@ -409,6 +468,7 @@ impl ArmEnv {
                         }
                     }
                     self.shapes[i] = self.shapes[i].at(c);
+                    self.shape_vels[i] = *v;
                 }
             }
         }
@@ -473,15 +533,19 @@ impl ArmEnv {
             .map(|r| r.ee)
             .unwrap_or_else(|| self.sc.arm.effector(&before.q));
         let mut s = self.state;
+        self.contact_impulse = [0.0; MAX_JOINTS];
         for _ in 0..self.sc.substeps {
             self.physics_step(&mut s, &a);
+            self.resolve_contact(&mut s);
         }
-        self.state = s;
         let cdt = self.sc.control_dt();
         self.t += cdt;
         self.steps += 1;
-        // Obstacles and the goal move on the control grid.
+        // Obstacles and the goal move on the control grid; a solid obstacle that moved into the arm pushes it
+        // at once (the contact is resolved again after the move).
         self.move_obstacles(self.t, cdt);
+        self.resolve_contact(&mut s);
+        self.state = s;
         let mut goal_jumped = false;
         while self.next_timed_jump < self.sc.events.goal_jump_times.len()
             && self.sc.events.goal_jump_times[self.next_timed_jump] <= self.t + 1e-12

@@ -3,6 +3,7 @@
 //! about rewards or learning.
 
 pub mod arm;
+pub mod contact;
 pub mod env;
 pub mod geometry;
 pub mod scenario;
@@ -11,4 +12,5 @@ pub mod simulate;
 pub use arm::{Arm, JointVec, Link, MAX_JOINTS};
 pub use env::{ArmEnv, ArmState, StepReport};
 pub use geometry::{Capsule, Shape};
+pub use contact::ContactMode;
 pub use scenario::{ControlMode, Integrator, Motion, Obstacle, Scenario};

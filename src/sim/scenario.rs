@@ -3,6 +3,7 @@
 //! `Scenario` the rest of the code trusts). Every key is documented here and in README.md.
 
 use super::arm::{Arm, Link, MAX_JOINTS};
+pub use super::contact::ContactMode;
 use super::geometry::{capsule_shape_distance, shape_shape_distance, Capsule, Shape};
 use crate::config::{finite, positive, ConfigError};
 use rand::Rng;
@@ -96,6 +97,8 @@ struct RawPhysics {
     horizon: i64,
     #[serde(default)]
     self_collision: bool,
+    #[serde(default)]
+    contact: ContactMode,
 }
 fn default_integrator() -> Integrator {
     Integrator::Rk4
@@ -117,6 +120,7 @@ impl Default for RawPhysics {
             substeps: default_substeps(),
             horizon: default_horizon(),
             self_collision: false,
+            contact: ContactMode::default(),
         }
     }
 }
@@ -256,6 +260,9 @@ pub struct Scenario {
     /// Control steps per episode.
     pub horizon: usize,
     pub self_collision: bool,
+    /// Whether obstacles, the boundary and (with `self_collision`) the arm itself are solid (`physics.contact`,
+    /// "solid" by default) or only detected ("pass-through").
+    pub contact: ContactMode,
     pub workspace_min: [f64; 2],
     pub workspace_max: [f64; 2],
     pub start_q: Vec<f64>,
@@ -602,6 +609,7 @@ impl Scenario {
             substeps: raw.physics.substeps as usize,
             horizon: raw.physics.horizon as usize,
             self_collision: raw.physics.self_collision,
+            contact: raw.physics.contact,
             workspace_min: wmin,
             workspace_max: wmax,
             start_q,
