@@ -33,7 +33,11 @@ fn kinetic_energy(sc: &Scenario, q: &[f64], dq: &[f64]) -> f64 {
     sc.arm.energy(q, dq)
 }
 
-fn contacts_of(sc: &Scenario, q: &[f64; MAX_JOINTS], shapes: &[Shape]) -> (Contacts, [[f64; 2]; MAX_JOINTS + 1]) {
+fn contacts_of(
+    sc: &Scenario,
+    q: &[f64; MAX_JOINTS],
+    shapes: &[Shape],
+) -> (Contacts, [[f64; 2]; MAX_JOINTS + 1]) {
     let mut pts = [[0.0; 2]; MAX_JOINTS + 1];
     sc.arm.joint_points(q, &mut pts);
     let world = Surroundings {
@@ -79,7 +83,11 @@ fn kinetic_energy_never_rises_across_a_contact() {
     // A frictionless, perfectly inelastic impulse dissipates T: with w = v + A lambda complementary to lambda,
     // dT = lambda^T v + lambda^T A lambda / 2 = -lambda^T A lambda / 2 <= 0 (Mirtich 1996, "Impulse-based dynamic
     // simulation of rigid body systems", ch. 3; Featherstone 2008, "Rigid Body Dynamics Algorithms", sec. 11.4).
-    let sc = scenario(&[(0.5, 1.2, 0.03), (0.4, 0.8, 0.03), (0.3, 0.5, 0.025)], "torque", "");
+    let sc = scenario(
+        &[(0.5, 1.2, 0.03), (0.4, 0.8, 0.03), (0.3, 0.5, 0.025)],
+        "torque",
+        "",
+    );
     let mut rng = ChaCha8Rng::seed_from_u64(7);
     let mut impacts = 0;
     let mut jammed = 0;
@@ -120,7 +128,11 @@ fn kinetic_energy_never_rises_across_a_contact() {
         );
         // And no contact approaches afterwards (the complementarity condition), also for jammed, redundant
         // contact sets (more contacts than joints, discs pressing one link from opposite sides).
-        let rows: Vec<_> = cs.as_slice().iter().map(|c| jacobian_row(&pts, c)).collect();
+        let rows: Vec<_> = cs
+            .as_slice()
+            .iter()
+            .map(|c| jacobian_row(&pts, c))
+            .collect();
         for row in &rows {
             let vn: f64 = (0..3).map(|i| row[i] * dq[i]).sum();
             assert!(vn >= -1e-9, "contact still approaching at {vn} m/s");
@@ -143,10 +155,7 @@ fn a_link_swung_into_a_disc_stops_along_the_normal_and_keeps_the_rest_of_its_mot
     let mut pts = [[0.0; 2]; MAX_JOINTS + 1];
     sc.arm.joint_points(&q, &mut pts);
     // A disc overlapping the middle of link 2 by 2 mm, on the side it swings towards (positive rotation).
-    let mid = [
-        0.5 * (pts[1][0] + pts[2][0]),
-        0.5 * (pts[1][1] + pts[2][1]),
-    ];
+    let mid = [0.5 * (pts[1][0] + pts[2][0]), 0.5 * (pts[1][1] + pts[2][1])];
     let th = q[0] + q[1];
     let side = [-th.sin(), th.cos()]; // direction of motion of link 2 under positive dq
     let radius = 0.06;
@@ -161,20 +170,31 @@ fn a_link_swung_into_a_disc_stops_along_the_normal_and_keeps_the_rest_of_its_mot
     let j = jacobian_row(&pts, &c);
     let mut dq = [1.5, 2.0, 0.0, 0.0, 0.0, 0.0];
     let vn_before = j[0] * dq[0] + j[1] * dq[1];
-    assert!(vn_before < -0.1, "the link must approach the disc, vn = {vn_before}");
+    assert!(
+        vn_before < -0.1,
+        "the link must approach the disc, vn = {vn_before}"
+    );
     let mut m = [[0.0; MAX_JOINTS]; MAX_JOINTS];
     sc.arm.mass_matrix(&q[..2], &mut m);
     let before = dq;
     resolve_velocities(&sc.arm, &q, &mut dq, &pts, &cs);
     let vn_after = j[0] * dq[0] + j[1] * dq[1];
-    assert!(vn_after.abs() < 1e-9, "normal speed after impact {vn_after}");
+    assert!(
+        vn_after.abs() < 1e-9,
+        "normal speed after impact {vn_after}"
+    );
     // Momentum along the unresisted direction u (2 links, one contact: u = (-J1, J0)).
     let u = [-j[1], j[0]];
     let p = |v: &[f64; MAX_JOINTS]| -> f64 {
-        (0..2).map(|a| (0..2).map(|b| u[a] * m[a][b] * v[b]).sum::<f64>()).sum()
+        (0..2)
+            .map(|a| (0..2).map(|b| u[a] * m[a][b] * v[b]).sum::<f64>())
+            .sum()
     };
     assert!((p(&dq) - p(&before)).abs() < 1e-9 * p(&before).abs().max(1.0));
-    assert!(p(&before).abs() > 1e-3, "the check needs tangential motion to keep");
+    assert!(
+        p(&before).abs() > 1e-3,
+        "the check needs tangential motion to keep"
+    );
     // Closed form: dq+ = dq - M^-1 J^T (J M^-1 J^T)^-1 J dq, with the 2 x 2 inverse written out.
     let det = m[0][0] * m[1][1] - m[0][1] * m[1][0];
     let minv = [
@@ -188,7 +208,11 @@ fn a_link_swung_into_a_disc_stops_along_the_normal_and_keeps_the_rest_of_its_mot
     let a = j[0] * w[0] + j[1] * w[1];
     for i in 0..2 {
         let expected = before[i] - w[i] * vn_before / a;
-        assert!((dq[i] - expected).abs() < 1e-9, "joint {i}: {} vs {expected}", dq[i]);
+        assert!(
+            (dq[i] - expected).abs() < 1e-9,
+            "joint {i}: {} vs {expected}",
+            dq[i]
+        );
     }
 }
 
@@ -211,7 +235,11 @@ fn an_arm_pushed_by_constant_torque_rests_on_the_disc_and_the_contact_balances_t
     let r = env.last_report();
     assert!(worst <= MAX_PENETRATION, "penetration reached {worst} m");
     assert!(r.collided, "the arm must be resting on the disc");
-    assert!(r.min_clearance > -MAX_PENETRATION, "clearance {}", r.min_clearance);
+    assert!(
+        r.min_clearance > -MAX_PENETRATION,
+        "clearance {}",
+        r.min_clearance
+    );
     assert!(r.dq[0].abs() < 1e-6, "not at rest: {}", r.dq[0]);
     // Where the link touches the disc: distance from the disc centre to the link's line = 0.03 + 0.08.
     let expected_angle = (0.2f64).atan2(0.3) - ((0.03 + 0.08) / (0.3f64.hypot(0.2))).asin();
@@ -245,8 +273,16 @@ fn a_moving_disc_pushes_a_resting_link_without_penetrating_it() {
     let r = env.last_report();
     assert!(touched, "the disc never reached the link");
     assert!(worst <= MAX_PENETRATION, "penetration reached {worst} m");
-    assert!(r.q[0] < -0.1, "the link was not pushed down: q = {}", r.q[0]);
-    assert!(r.dq[0] < 0.0, "the link must move with the disc: dq = {}", r.dq[0]);
+    assert!(
+        r.q[0] < -0.1,
+        "the link was not pushed down: q = {}",
+        r.q[0]
+    );
+    assert!(
+        r.dq[0] < 0.0,
+        "the link must move with the disc: dq = {}",
+        r.dq[0]
+    );
 }
 
 #[test]
@@ -269,7 +305,10 @@ fn solid_obstacles_stop_an_arm_that_would_pass_through() {
             worst = worst.max(-r.min_clearance);
         }
         if expect_through {
-            assert!(worst > 0.05, "{mode}: expected deep penetration, got {worst}");
+            assert!(
+                worst > 0.05,
+                "{mode}: expected deep penetration, got {worst}"
+            );
         } else {
             assert!(worst <= MAX_PENETRATION, "{mode}: penetration {worst}");
         }
@@ -315,6 +354,9 @@ fn solid_boundary_and_boxes_hold_too() {
         worst = worst.max(-r.min_clearance);
         touched += r.collided as usize;
     }
-    assert!(touched > 20, "the arm touched something in only {touched} steps");
+    assert!(
+        touched > 20,
+        "the arm touched something in only {touched} steps"
+    );
     assert!(worst <= MAX_PENETRATION, "penetration {worst}");
 }

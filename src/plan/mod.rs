@@ -16,6 +16,7 @@
 
 pub mod bi_rrt_star;
 pub mod command;
+pub mod connectivity;
 pub mod draw;
 pub mod ik;
 pub mod path;

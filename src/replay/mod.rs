@@ -5,7 +5,7 @@
 use crate::learn::Policy;
 use crate::sim::{Shape, StepReport};
 use crate::study::experiment::{Experiment, VariantSpec};
-use crate::study::task::{eval_draw, Episode, EpisodeMetrics};
+use crate::study::task::{begin_eval, Episode, EpisodeMetrics};
 use plotters::prelude::*;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -67,9 +67,8 @@ pub fn record(v: &VariantSpec, controller: &Controller, eval_seed: u64, j: u64) 
         v.learner.gamma,
         v.observation.waypoints,
     );
-    let (d, mut rng) = eval_draw(&mut ep, eval_seed, j);
     let mut baseline = crate::study::run::baseline_actor(v);
-    ep.begin(&d, &mut rng);
+    begin_eval(&mut ep, eval_seed, j);
     let names: Vec<String> = v
         .reward
         .term_names()

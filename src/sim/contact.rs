@@ -100,10 +100,7 @@ impl Contacts {
 
     /// Deepest penetration among them, m (0 when none).
     pub fn max_penetration(&self) -> f64 {
-        self.as_slice()
-            .iter()
-            .map(|c| -c.depth)
-            .fold(0.0, f64::max)
+        self.as_slice().iter().map(|c| -c.depth).fold(0.0, f64::max)
     }
 
     /// Add a contact; when full, it replaces the shallowest one if it is deeper.
@@ -113,17 +110,17 @@ impl Contacts {
             self.len += 1;
             return;
         }
-        let (k, shallowest) = self
-            .items
-            .iter()
-            .enumerate()
-            .fold((0, f64::NEG_INFINITY), |acc, (k, x)| {
-                if x.depth > acc.1 {
-                    (k, x.depth)
-                } else {
-                    acc
-                }
-            });
+        let (k, shallowest) =
+            self.items
+                .iter()
+                .enumerate()
+                .fold((0, f64::NEG_INFINITY), |acc, (k, x)| {
+                    if x.depth > acc.1 {
+                        (k, x.depth)
+                    } else {
+                        acc
+                    }
+                });
         if c.depth < shallowest {
             self.items[k] = c;
         }
@@ -548,7 +545,11 @@ impl Problem {
 
     /// Solve A_PP s_P = -c_P over the passive set (zero elsewhere) by Cholesky with a ridge of 1e-12 of the
     /// diagonal's size (A_PP may be singular when contacts are redundant). None if the factorisation fails.
-    fn solve_subset(&self, c: &[f64; MAX_CONTACTS], passive: &[bool; MAX_CONTACTS]) -> Option<[f64; MAX_CONTACTS]> {
+    fn solve_subset(
+        &self,
+        c: &[f64; MAX_CONTACTS],
+        passive: &[bool; MAX_CONTACTS],
+    ) -> Option<[f64; MAX_CONTACTS]> {
         let mut idx = [0usize; MAX_CONTACTS];
         let mut s = 0;
         for (k, &p) in passive.iter().enumerate().take(self.m) {

@@ -3,11 +3,11 @@
 //! `step` does not allocate.
 
 use super::arm::{JointVec, Trig, MAX_JOINTS};
+use super::contact::{self, ContactMode, Surroundings};
 use super::geometry::{
     capsule_boundary_clearance, capsule_capsule_distance, capsule_shape_distance, dist, Capsule,
     Shape,
 };
-use super::contact::{self, ContactMode, Surroundings};
 use super::scenario::{ControlMode, Integrator, Motion, Scenario};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;

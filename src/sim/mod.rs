@@ -10,7 +10,7 @@ pub mod scenario;
 pub mod simulate;
 
 pub use arm::{Arm, JointVec, Link, MAX_JOINTS};
+pub use contact::ContactMode;
 pub use env::{ArmEnv, ArmState, StepReport};
 pub use geometry::{Capsule, Shape};
-pub use contact::ContactMode;
 pub use scenario::{ControlMode, Integrator, Motion, Obstacle, Scenario};

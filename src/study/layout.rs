@@ -34,6 +34,15 @@ pub struct RunRecord {
     pub heartbeat_unix: u64,
     pub version: String,
     pub message: Option<String>,
+    /// Training draws rejected because no collision-free path joined their start and goal.
+    #[serde(default)]
+    pub redraws: u64,
+    /// Training episodes used without such a path (after `task::MAX_REDRAWS` draws).
+    #[serde(default)]
+    pub unsolved: u64,
+    /// Training episodes so far.
+    #[serde(default)]
+    pub episodes: u64,
 }
 
 fn now_unix() -> u64 {
@@ -56,6 +65,9 @@ impl RunRecord {
             heartbeat_unix: now_unix(),
             version: env!("CARGO_PKG_VERSION").into(),
             message: None,
+            redraws: 0,
+            unsolved: 0,
+            episodes: 0,
         }
     }
     pub fn heartbeat(&mut self, env_steps: u64, wall: f64) {
@@ -189,6 +201,13 @@ pub struct VariantRecord {
     pub changes: Vec<super::experiment::Change>,
     pub grid: Option<std::collections::BTreeMap<String, f64>>,
     pub curriculum: String,
+    /// Evaluation draws rejected because no collision-free path joined start and goal (the evaluation
+    /// episodes are drawn again until one does; see `task::begin_eval`).
+    #[serde(default)]
+    pub eval_redraws: u64,
+    /// Evaluation episodes still without such a path after `task::MAX_REDRAWS` draws.
+    #[serde(default)]
+    pub eval_unsolved: u64,
 }
 
 pub fn write_study_json(dir: &Path, exp: &Experiment) -> Result<(), StudyError> {
@@ -204,15 +223,20 @@ pub fn write_study_json(dir: &Path, exp: &Experiment) -> Result<(), StudyError> 
         variants: exp
             .variants
             .iter()
-            .map(|v| VariantRecord {
-                name: v.name.clone(),
-                kind: match v.kind {
-                    VariantKind::Learned => "learned".into(),
-                    VariantKind::Baseline => "baseline".into(),
-                },
-                changes: v.changes.clone(),
-                grid: v.grid.clone(),
-                curriculum: v.curriculum.kind.clone(),
+            .map(|v| {
+                let (eval_redraws, eval_unsolved) = super::run::eval_redraws(exp, v);
+                VariantRecord {
+                    name: v.name.clone(),
+                    kind: match v.kind {
+                        VariantKind::Learned => "learned".into(),
+                        VariantKind::Baseline => "baseline".into(),
+                    },
+                    changes: v.changes.clone(),
+                    grid: v.grid.clone(),
+                    curriculum: v.curriculum.kind.clone(),
+                    eval_redraws,
+                    eval_unsolved,
+                }
             })
             .collect(),
         config_toml: exp.source.clone(),

@@ -291,6 +291,20 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
         exp.study.budget, total, evals, exp.study.eval_episodes
     );
     if calibrate {
+        for v in &exp.variants {
+            let (redraws, unsolved) = run::eval_redraws(exp, v);
+            let _ = writeln!(
+                s,
+                "evaluation episodes of `{}`: {} draws rejected for lack of a collision-free path{}",
+                v.name,
+                redraws,
+                if unsolved > 0 {
+                    format!(", {unsolved} still unsolved after {} draws", task::MAX_REDRAWS)
+                } else {
+                    String::new()
+                }
+            );
+        }
         let (train_sps, eval_s) = calibration(exp)?;
         let per_run = exp.study.budget as f64 / train_sps + evals as f64 * eval_s;
         let workers = jobs.max(1).min(runs.len().max(1)) as f64;
@@ -322,12 +336,7 @@ fn calibration(exp: &Experiment) -> Result<(f64, f64), StudyError> {
     let Some(v) = exp.variants.iter().find(|v| v.kind == VariantKind::Learned) else {
         return Ok((f64::INFINITY, 0.0));
     };
-    let shared = std::sync::Arc::new(Mutex::new(task::RunShared {
-        curriculum: v.curriculum.build(),
-        env_steps: 0,
-        episodes: 0,
-        successes: 0,
-    }));
+    let shared = std::sync::Arc::new(Mutex::new(task::RunShared::new(v.curriculum.build())));
     let envs = run::build_envs(v, 1, &shared);
     let mut trainer = crate::learn::Trainer::new(v.learner.clone(), envs, 1)
         .map_err(|e| StudyError::Run(e.to_string()))?;

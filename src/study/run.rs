@@ -4,7 +4,7 @@
 
 use super::experiment::{fnv1a_hex, Experiment, VariantKind, VariantSpec};
 use super::layout::{self, RunRecord, RunStatus};
-use super::task::{eval_draw, run_episode, Episode, EvalSummary, RunShared, TaskEnv};
+use super::task::{begin_eval, run_episode, Episode, EvalSummary, RunShared, TaskEnv};
 use super::StudyError;
 use crate::learn::{Environment, LearnError, NoObserver, Policy, Trainer};
 use std::path::{Path, PathBuf};
@@ -95,10 +95,27 @@ pub fn evaluate_policy(exp: &Experiment, v: &VariantSpec, policy: &Policy) -> Ev
     let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
     let mut act = |_: &Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
     for j in 0..exp.study.eval_episodes as u64 {
-        let (d, mut rng) = eval_draw(&mut ep, exp.study.eval_seed, j);
-        eps.push(run_episode(&mut ep, &d, &mut rng, &mut act));
+        eps.push(run_episode(&mut ep, exp.study.eval_seed, j, &mut act));
     }
     EvalSummary::from_episodes(&eps)
+}
+
+/// Redraws the study's evaluation episodes need under variant `v` (rejected draws, episodes left unsolved).
+pub fn eval_redraws(exp: &Experiment, v: &VariantSpec) -> (u64, u64) {
+    let mut ep = Episode::new(
+        v.scenario.clone(),
+        &v.reward,
+        &v.plan,
+        v.learner.gamma,
+        v.observation.waypoints,
+    );
+    let (mut redraws, mut unsolved) = (0, 0);
+    for j in 0..exp.study.eval_episodes as u64 {
+        let r = begin_eval(&mut ep, exp.study.eval_seed, j);
+        redraws += r.redraws as u64;
+        unsolved += r.unsolved as u64;
+    }
+    (redraws, unsolved)
 }
 
 /// Evaluate the classical tracking controller on the study's fixed evaluation episodes. The tracker follows
@@ -113,8 +130,12 @@ pub fn evaluate_baseline(exp: &Experiment, v: &VariantSpec) -> EvalSummary {
     );
     let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
     for j in 0..exp.study.eval_episodes as u64 {
-        let (d, mut rng) = eval_draw(&mut ep, exp.study.eval_seed, j);
-        eps.push(run_episode(&mut ep, &d, &mut rng, &mut baseline_actor(v)));
+        eps.push(run_episode(
+            &mut ep,
+            exp.study.eval_seed,
+            j,
+            &mut baseline_actor(v),
+        ));
     }
     EvalSummary::from_episodes(&eps)
 }
@@ -201,12 +222,7 @@ pub fn execute(
         cfg.lr_decay_steps = exp.study.budget as u64;
     }
     let rseed = run_seed(exp, v, spec.seed);
-    let shared = Arc::new(Mutex::new(RunShared {
-        curriculum: v.curriculum.build(),
-        env_steps: 0,
-        episodes: 0,
-        successes: 0,
-    }));
+    let shared = Arc::new(Mutex::new(RunShared::new(v.curriculum.build())));
     let envs = build_envs(v, rseed, &shared);
     let mut trainer = Trainer::new(cfg, envs, rseed)
         .map_err(|e| StudyError::Run(format!("{}: {e}", spec.dir.display())))?;
@@ -266,6 +282,11 @@ pub fn execute(
             }
         }
         record.heartbeat(trainer.env_steps(), t0.elapsed().as_secs_f64());
+        {
+            let sh = shared.lock().expect("run state");
+            (record.redraws, record.unsolved, record.episodes) =
+                (sh.redraws, sh.unsolved, sh.episodes);
+        }
         layout::write_run_json(&spec.dir, &record)?;
     }
     if status == RunStatus::Interrupted && rows.last().map(|r| r.0) != Some(trainer.env_steps()) {

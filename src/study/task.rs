@@ -4,9 +4,10 @@
 
 use crate::curriculum::{Curriculum, EpisodeDraw};
 use crate::learn::{Environment, Transition};
+use crate::plan::connectivity::ConnectivityGrid;
 use crate::plan::{plan_path, PlanSpec, ReferencePath};
 use crate::reward::{Composer, RewardSpec};
-use crate::sim::{ArmEnv, ArmState, Scenario, StepReport, MAX_JOINTS};
+use crate::sim::{ArmEnv, ArmState, Scenario, Shape, StepReport, MAX_JOINTS};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::sync::{Arc, Mutex};
@@ -64,6 +65,28 @@ struct Accum {
     time_to_goal: Option<f64>,
 }
 
+/// Most times an episode's start and goal are drawn again because no collision-free path joins them.
+pub const MAX_REDRAWS: usize = 50;
+
+/// How an episode's draw went: draws rejected as unsolvable, and whether the one used is still unsolved
+/// (only after `MAX_REDRAWS`).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Redraws {
+    pub redraws: usize,
+    pub unsolved: bool,
+}
+
+/// The planner settings that decide whether a start and goal are joined by a collision-free path: the
+/// episode's planner with ten times its iterations (at least 6000) and no wall-clock limit, so the decision is
+/// deterministic whatever the machine.
+pub fn feasibility_spec(plan: &PlanSpec) -> PlanSpec {
+    PlanSpec {
+        iterations: (plan.iterations.saturating_mul(10)).max(6000),
+        time_budget_ms: 1e9,
+        ..plan.clone()
+    }
+}
+
 /// One episode of the task: simulator + reference path + reward composer + metrics.
 pub struct Episode {
     pub sim: ArmEnv,
@@ -74,6 +97,9 @@ pub struct Episode {
     acc: Accum,
     path_obs: bool,
     plan_rng: ChaCha8Rng,
+    /// Joint-space connectivity of the obstacle layouts episodes began with (two-link arms; curricula may
+    /// vary the obstacle count, so a few layouts are kept).
+    grids: Vec<(Vec<Shape>, Option<ConnectivityGrid>)>,
 }
 
 impl Episode {
@@ -102,6 +128,7 @@ impl Episode {
             acc: Accum::default(),
             path_obs,
             plan_rng: ChaCha8Rng::seed_from_u64(n as u64),
+            grids: Vec::new(),
         }
     }
 
@@ -120,7 +147,8 @@ impl Episode {
     }
 
     /// Start an episode from a draw: plan the reference path (from the nominal start), optionally move the
-    /// start onto a random waypoint, reset the simulator, the composer and the metrics.
+    /// start onto a random waypoint, reset the simulator, the composer and the metrics. The draw is used as it
+    /// is, solvable or not (see `begin_feasible`).
     pub fn begin(&mut self, d: &EpisodeDraw, rng: &mut ChaCha8Rng) {
         self.sim.set_difficulty(d.obstacles, d.jump_rate);
         self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
@@ -131,6 +159,78 @@ impl Episode {
             &self.plan,
             &mut self.plan_rng,
         );
+        self.begin_with_path(d, path, rng);
+    }
+
+    /// Start an episode whose start and goal are joined by a collision-free path: draw with `draw`, plan, and
+    /// when the episode's planner finds no path, check again with a generous, deterministic budget
+    /// (`feasibility_spec`); draw again while that fails too, at most `MAX_REDRAWS` times (then the last draw
+    /// is used and counted as unsolved). Feasibility is checked at the start of the episode, with the obstacles
+    /// where they begin: with moving obstacles or goal jumps a later replan may still find no path. Returns the
+    /// number of redraws.
+    pub fn begin_feasible(
+        &mut self,
+        draw: &mut dyn FnMut(&ArmEnv, &mut ChaCha8Rng) -> EpisodeDraw,
+        rng: &mut ChaCha8Rng,
+    ) -> Redraws {
+        let n = self.sim.n();
+        let mut redraws = Redraws::default();
+        loop {
+            let d = draw(&self.sim, rng);
+            self.sim.set_difficulty(d.obstacles, d.jump_rate);
+            self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
+            if !self.may_connect(&d) && redraws.redraws < MAX_REDRAWS {
+                redraws.redraws += 1;
+                continue;
+            }
+            let mut path = plan_path(
+                &self.sim,
+                &d.start.q[..n],
+                d.goal,
+                &self.plan,
+                &mut self.plan_rng,
+            );
+            if path.fallback {
+                let generous = feasibility_spec(&self.plan);
+                path = plan_path(
+                    &self.sim,
+                    &d.start.q[..n],
+                    d.goal,
+                    &generous,
+                    &mut self.plan_rng,
+                );
+            }
+            if !path.fallback || redraws.redraws >= MAX_REDRAWS {
+                redraws.unsolved = path.fallback;
+                self.begin_with_path(&d, path, rng);
+                return redraws;
+            }
+            redraws.redraws += 1;
+        }
+    }
+
+    /// False when the joint-space grid (two-link arms) shows the draw's start and goal in different free
+    /// regions: no collision-free path, so no planning is spent on it. True otherwise.
+    fn may_connect(&mut self, d: &EpisodeDraw) -> bool {
+        let layout = self.sim.obstacles();
+        let k = match self.grids.iter().position(|(l, _)| l.as_slice() == layout) {
+            Some(k) => k,
+            None => {
+                if self.grids.len() >= 8 {
+                    self.grids.remove(0);
+                }
+                let g = ConnectivityGrid::build(&self.sim, self.plan.clearance_margin);
+                self.grids.push((layout.to_vec(), g));
+                self.grids.len() - 1
+            }
+        };
+        match &self.grids[k].1 {
+            Some(g) => g.may_connect(&self.sim, &d.start.q, d.goal),
+            None => true,
+        }
+    }
+
+    fn begin_with_path(&mut self, d: &EpisodeDraw, path: ReferencePath, rng: &mut ChaCha8Rng) {
         let mut start = d.start;
         if d.start_on_path && path.joints.len() > 1 {
             let k = rng.gen_range(0..path.joints.len() - 1);
@@ -260,6 +360,24 @@ pub struct RunShared {
     pub env_steps: u64,
     pub episodes: u64,
     pub successes: u64,
+    /// Training draws rejected because no collision-free path joined start and goal.
+    pub redraws: u64,
+    /// Training episodes that still had no such path after `MAX_REDRAWS` draws.
+    pub unsolved: u64,
+}
+
+impl RunShared {
+    /// Fresh tallies around a run's curriculum.
+    pub fn new(curriculum: Box<dyn Curriculum>) -> RunShared {
+        RunShared {
+            curriculum,
+            env_steps: 0,
+            episodes: 0,
+            successes: 0,
+            redraws: 0,
+            unsolved: 0,
+        }
+    }
 }
 
 /// A training environment: an `Episode` whose starts come from the run's curriculum.
@@ -287,15 +405,22 @@ impl Environment for TaskEnv {
         self.ep.act_dim()
     }
     fn reset(&mut self, obs: &mut [f32]) {
-        let draw = {
-            let mut sh = self.shared.lock().expect("run state lock");
+        let shared = self.shared.clone();
+        let mut draw = |sim: &ArmEnv, rng: &mut ChaCha8Rng| {
+            let mut sh = shared.lock().expect("run state lock");
             let steps = sh.env_steps;
-            let n_obs = self.ep.sim.scenario().obstacles.len();
-            let rate = self.ep.sim.scenario().events.goal_jump_rate;
-            self.ep.sim.set_difficulty(n_obs, rate);
-            sh.curriculum.draw(&self.ep.sim, steps, &mut self.rng)
+            let mut probe = sim.clone();
+            let n_obs = probe.scenario().obstacles.len();
+            let rate = probe.scenario().events.goal_jump_rate;
+            probe.set_difficulty(n_obs, rate);
+            sh.curriculum.draw(&probe, steps, rng)
         };
-        self.ep.begin(&draw, &mut self.rng);
+        let r = self.ep.begin_feasible(&mut draw, &mut self.rng);
+        {
+            let mut sh = self.shared.lock().expect("run state lock");
+            sh.redraws += r.redraws as u64;
+            sh.unsolved += r.unsolved as u64;
+        }
         self.ep.observe(obs);
     }
     fn step(&mut self, action: &[f32], obs: &mut [f32]) -> Transition {
@@ -318,28 +443,32 @@ impl Environment for TaskEnv {
     }
 }
 
-/// The fixed evaluation episode `j` of a study: uniform start and goal from a seed shared by every variant and
-/// seed, the scenario's full obstacle set and events.
-pub fn eval_draw(ep: &mut Episode, eval_seed: u64, j: u64) -> (EpisodeDraw, ChaCha8Rng) {
+/// Begin the fixed evaluation episode `j` of a study: uniform start and goal from a seed shared by every variant
+/// and seed, the scenario's full obstacle set and events, drawn again (deterministically, from the same seeded
+/// stream) while no collision-free path joins them. So the evaluation episodes are identical for every variant
+/// and seed, and each is solvable. Returns the redraws.
+pub fn begin_eval(ep: &mut Episode, eval_seed: u64, j: u64) -> Redraws {
     let mut rng = ChaCha8Rng::seed_from_u64(eval_seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ j);
-    let sc = ep.sim.scenario().clone();
-    ep.sim
-        .set_difficulty(sc.obstacles.len(), sc.events.goal_jump_rate);
-    let d = crate::curriculum::full_task_draw(&ep.sim, &mut rng);
-    (d, rng)
+    let mut draw = |sim: &ArmEnv, rng: &mut ChaCha8Rng| {
+        let mut full = sim.clone();
+        let sc = full.scenario().clone();
+        full.set_difficulty(sc.obstacles.len(), sc.events.goal_jump_rate);
+        crate::curriculum::full_task_draw(&full, rng)
+    };
+    ep.begin_feasible(&mut draw, &mut rng)
 }
 
 /// A deterministic controller: (episode, observation, normalised action out).
 pub type Actor<'a> = dyn FnMut(&Episode, &[f32], &mut [f32]) + 'a;
 
-/// Run one evaluation episode with a deterministic controller `act(obs, action_out)`.
+/// Run evaluation episode `j` (see `begin_eval`) with a deterministic controller `act(obs, action_out)`.
 pub fn run_episode(
     ep: &mut Episode,
-    draw: &EpisodeDraw,
-    rng: &mut ChaCha8Rng,
+    eval_seed: u64,
+    j: u64,
     act: &mut Actor<'_>,
 ) -> EpisodeMetrics {
-    ep.begin(draw, rng);
+    begin_eval(ep, eval_seed, j);
     let mut obs = vec![0f32; ep.obs_dim()];
     let mut action = vec![0f32; ep.act_dim()];
     loop {

@@ -1,0 +1,72 @@
+//! Every episode can be solved: evaluation episodes are drawn again until a collision-free path joins start and
+//! goal, and the quick joint-space grid test that rejects draws agrees with a generous planner search.
+
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use std::path::Path;
+use termwise::curriculum::full_task_draw;
+use termwise::plan::connectivity::ConnectivityGrid;
+use termwise::plan::plan_path;
+use termwise::study::experiment;
+use termwise::study::task::{begin_eval, feasibility_spec, Episode};
+
+fn quickstart_episode() -> (experiment::Experiment, Episode) {
+    let exp = experiment::load(Path::new("experiments/quickstart.toml")).unwrap();
+    let v = exp.variants[0].clone();
+    let ep = Episode::new(
+        v.scenario.clone(),
+        &v.reward,
+        &v.plan,
+        v.learner.gamma,
+        v.observation.waypoints,
+    );
+    (exp, ep)
+}
+
+#[test]
+fn evaluation_episodes_all_have_a_collision_free_path_and_are_the_same_every_time() {
+    let (exp, mut ep) = quickstart_episode();
+    let mut redrawn = 0;
+    let mut firsts = Vec::new();
+    for j in 0..exp.study.eval_episodes as u64 {
+        let r = begin_eval(&mut ep, exp.study.eval_seed, j);
+        assert!(!r.unsolved, "episode {j} unsolved");
+        assert!(
+            !ep.path.fallback,
+            "episode {j} has no collision-free reference path"
+        );
+        redrawn += (r.redraws > 0) as usize;
+        firsts.push((ep.sim.state().q, ep.sim.goal()));
+    }
+    // The scenario's two discs split the joint space: some draws must have been rejected.
+    assert!(redrawn > 0, "no evaluation episode needed a redraw");
+    for j in 0..exp.study.eval_episodes as u64 {
+        begin_eval(&mut ep, exp.study.eval_seed, j);
+        assert_eq!((ep.sim.state().q, ep.sim.goal()), firsts[j as usize]);
+    }
+}
+
+#[test]
+fn the_grid_rejects_only_draws_the_generous_planner_cannot_solve() {
+    let (exp, ep) = quickstart_episode();
+    let v = &exp.variants[0];
+    let sim = ep.sim.clone();
+    let grid = ConnectivityGrid::build(&sim, v.plan.clearance_margin).unwrap();
+    let generous = feasibility_spec(&v.plan);
+    let mut rng = ChaCha8Rng::seed_from_u64(99);
+    let (mut rejected, mut agreed) = (0, 0);
+    for _ in 0..120 {
+        let d = full_task_draw(&sim, &mut rng);
+        let connected = grid.may_connect(&sim, &d.start.q, d.goal);
+        if !connected {
+            rejected += 1;
+            let path = plan_path(&sim, &d.start.q[..2], d.goal, &generous, &mut rng);
+            agreed += path.fallback as usize;
+        }
+    }
+    assert!(rejected >= 20, "only {rejected} of 120 draws rejected");
+    assert_eq!(
+        agreed, rejected,
+        "the planner solved draws the grid rejected"
+    );
+}
