@@ -19,12 +19,14 @@
 //! # }
 //! ```
 
+pub mod follower;
 pub mod metrics;
 pub mod profile;
 pub mod spec;
 pub mod tracker;
 pub mod trajectory;
 
+pub use follower::RouteFollower;
 pub use metrics::{trajectory_metrics, TrajectoryMetrics};
 pub use profile::{Profile, TimeScaling};
 pub use spec::{BaselineSpec, Gains};

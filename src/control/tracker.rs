@@ -123,6 +123,24 @@ impl Tracker {
         self.trajectory = Some((traj, t));
     }
 
+    /// The joint speed and acceleration budgets its references are timed with.
+    pub fn budget(&self) -> Budget {
+        self.budget.clone()
+    }
+
+    /// Start following a smooth timed spline through every point of `route` (see `Trajectory::new`).
+    pub fn follow_through(&mut self, route: &[JointVec], q: &[f64], dq: &[f64], t: f64) {
+        let traj = Trajectory::new(self.n, route, q, dq, self.scaling, &self.budget);
+        self.trajectory = Some((traj, t));
+    }
+
+    /// Start following the straight joint-space line from the current state to `target` (a trapezoid or quintic
+    /// along it, starting from the current velocity), at episode time `t`.
+    pub fn follow_to(&mut self, target: &JointVec, q: &[f64], dq: &[f64], t: f64) {
+        let traj = Trajectory::new(self.n, std::slice::from_ref(target), q, dq, self.scaling, &self.budget);
+        self.trajectory = Some((traj, t));
+    }
+
     /// The current timed trajectory and the episode time it started at.
     pub fn trajectory(&self) -> Option<(&Trajectory, f64)> {
         self.trajectory.as_ref().map(|(tr, t0)| (tr, *t0))

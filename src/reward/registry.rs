@@ -208,5 +208,13 @@ pub fn describe_terms() -> String {
         }
         let _ = writeln!(s);
     }
+    let _ = writeln!(
+        s,
+        "\nEnding episodes on contact: with a per-step cost (time, distance) an episode that ends at its first\n\
+         contact stops paying that cost, so a policy can earn more by crashing early than by trying to reach the\n\
+         goal. Either keep episodes going on contact ([reward.collision] terminate = false, with a penalty per step\n\
+         in contact), or charge the forgone steps: remaining_cost = the time cost makes a crash cost at least as\n\
+         much as using the whole horizon. The report flags variants whose return rises while clean success falls."
+    );
     s
 }

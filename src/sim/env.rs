@@ -66,6 +66,8 @@ pub struct StepReport {
     pub reached_goal: bool,
     /// The episode horizon was reached.
     pub timed_out: bool,
+    /// Control steps left until the horizon.
+    pub steps_left: usize,
     /// The goal jumped during this step.
     pub goal_jumped: bool,
     /// Some obstacle moved more than the replan margin since `mark_planned`.
@@ -264,6 +266,7 @@ impl ArmEnv {
             collided: min_c < 0.0,
             reached_goal: dist(ee, goal) < self.sc.goal_tolerance,
             timed_out: false,
+            steps_left: self.sc.horizon,
             goal_jumped: false,
             obstacle_moved: false,
         };
@@ -594,6 +597,7 @@ impl ArmEnv {
             collided: min_c < 0.0,
             reached_goal: goal_dist < self.sc.goal_tolerance,
             timed_out: self.steps >= self.sc.horizon,
+            steps_left: self.sc.horizon.saturating_sub(self.steps),
             goal_jumped,
             obstacle_moved: moved,
         };

@@ -140,22 +140,22 @@ pub fn evaluate_baseline(exp: &Experiment, v: &VariantSpec) -> EvalSummary {
     EvalSummary::from_episodes(&eps)
 }
 
-/// A controller closure driving an `Episode` with the baseline tracker (normalised actions).
+/// A controller closure driving an `Episode` with the baseline (normalised actions): it plans and follows its
+/// own route with its clearance (`control::RouteFollower`), and replans after the episode's scenario events.
 pub fn baseline_actor(v: &VariantSpec) -> impl FnMut(&Episode, &[f32], &mut [f32]) {
-    let mut tracker = crate::control::Tracker::new(&v.baseline, &v.scenario);
+    let mut follower = crate::control::RouteFollower::new(&v.baseline, &v.plan, &v.scenario);
     let mut seen: Option<(usize, f64)> = None;
     let mut out = vec![0.0; v.scenario.n()];
     move |ep: &Episode, _obs: &[f32], action: &mut [f32]| {
-        let st = *ep.sim.state();
         let n = ep.sim.n();
         let t = ep.sim.time();
-        // A new episode (time went back) or a replan: follow the current path from here.
+        // A new episode (time went back) or a scenario event: plan from here.
         let key = (ep.replans(), t);
         if seen.is_none_or(|(r, t0)| r != key.0 || t < t0) {
-            tracker.follow(&ep.path, &st.q[..n], &st.dq[..n], t);
+            follower.reset();
         }
         seen = Some(key);
-        tracker.action(&ep.sim.scenario().arm, &st.q[..n], &st.dq[..n], t, &mut out);
+        follower.action(&ep.sim, &mut out);
         for i in 0..n {
             action[i] = (out[i] / ep.sim.action_limits()[i]) as f32;
         }

@@ -8,7 +8,7 @@ use crate::sim::StepReport;
 pub const INFO: TermInfo = TermInfo {
     name: "collision",
     meaning: "penalty on the step that ends in contact; optionally contact ends the episode",
-    sign: "-penalty on a step whose end state is in contact",
+    sign: "-penalty on a step whose end state is in contact (- remaining_cost x steps left when contact ends the episode)",
     negative_weight: None,
     params: &[
         ParamInfo {
@@ -25,6 +25,13 @@ pub const INFO: TermInfo = TermInfo {
             unit: "",
             meaning: "contact ends the episode (honoured even with weight = 0 while the table is present)",
         },
+        ParamInfo {
+            name: "remaining_cost",
+            kind: ParamKind::Magnitude,
+            default: ParamValue::Number(0.0),
+            unit: "reward per step",
+            meaning: "when contact ends the episode, also subtracted once per step left to the horizon (set it to the time cost so crashing early saves nothing)",
+        },
     ],
     build,
 };
@@ -36,6 +43,11 @@ pub struct Collision {
     pub penalty: f64,
     /// Whether contact ends the episode (default true).
     pub terminate: bool,
+    /// Charged once per control step left to the horizon when contact ends the episode (default 0). With a
+    /// per-step time cost c and no such charge, an episode that crashes at step k costs k c + penalty while one
+    /// that goes on to the horizon H costs up to H c: ending on contact then rewards crashing early. Setting it to
+    /// c charges the forgone steps, so a crash costs at least as much as using the whole horizon.
+    pub remaining_cost: f64,
 }
 
 impl Default for Collision {
@@ -49,6 +61,7 @@ impl Collision {
         Collision {
             penalty: p.number("penalty"),
             terminate: p.flag("terminate"),
+            remaining_cost: p.number("remaining_cost"),
         }
     }
 }
@@ -61,7 +74,12 @@ impl Term for Collision {
     #[inline]
     fn value(&self, tr: &Transition) -> f64 {
         if tr.now.collided {
-            -self.penalty
+            let forgone = if self.terminate {
+                self.remaining_cost * tr.now.steps_left as f64
+            } else {
+                0.0
+            };
+            -self.penalty - forgone
         } else {
             0.0
         }
