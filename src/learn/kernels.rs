@@ -467,15 +467,16 @@ impl Lanes for Portable {
 }
 
 /// One register tile of [`KernelPath::bcast`]: `MR` rows x `NV` vectors (the last of which
-/// holds `last` valid lanes) starting at row `i0`, column `j0`.
+/// holds `last` valid lanes; all `L` when `FULL`, which keeps masks out of the inner loop)
+/// starting at row `i0`, column `j0`.
 #[inline(always)]
-unsafe fn bcast_tile<S: Lanes, const MR: usize, const NV: usize>(
+unsafe fn bcast_tile<S: Lanes, const MR: usize, const NV: usize, const FULL: bool>(
     p: &Bcast,
     i0: usize,
     j0: usize,
     last: usize,
 ) {
-    let cnt = |v: usize| if v + 1 == NV { last } else { S::L };
+    let cnt = |v: usize| if FULL || v + 1 != NV { S::L } else { last };
     let mut acc = [[S::zero(); NV]; MR];
     if let Some(init) = p.init {
         for v in 0..NV {
@@ -538,11 +539,15 @@ unsafe fn bcast_nv<S: Lanes, const MR: usize>(
     nv: usize,
     last: usize,
 ) {
-    match nv {
-        1 => bcast_tile::<S, MR, 1>(p, i0, j0, last),
-        2 => bcast_tile::<S, MR, 2>(p, i0, j0, last),
-        3 => bcast_tile::<S, MR, 3>(p, i0, j0, last),
-        _ => bcast_tile::<S, MR, 4>(p, i0, j0, last),
+    match (nv, last == S::L) {
+        (1, true) => bcast_tile::<S, MR, 1, true>(p, i0, j0, last),
+        (1, false) => bcast_tile::<S, MR, 1, false>(p, i0, j0, last),
+        (2, true) => bcast_tile::<S, MR, 2, true>(p, i0, j0, last),
+        (2, false) => bcast_tile::<S, MR, 2, false>(p, i0, j0, last),
+        (3, true) => bcast_tile::<S, MR, 3, true>(p, i0, j0, last),
+        (3, false) => bcast_tile::<S, MR, 3, false>(p, i0, j0, last),
+        (_, true) => bcast_tile::<S, MR, 4, true>(p, i0, j0, last),
+        (_, false) => bcast_tile::<S, MR, 4, false>(p, i0, j0, last),
     }
 }
 
