@@ -17,8 +17,41 @@ use rand_chacha::ChaCha8Rng;
 use reach_env::{reach_envs, Goals};
 use termwise::learn::fused::{self, FusedWorkspace};
 use termwise::learn::gae::{advantages, Segment};
+use termwise::learn::kernels::KernelPath;
 use termwise::learn::ppo::{loss_and_grads, Minibatch};
 use termwise::learn::{pin_kernel_threads, Mlp, NoObserver, PpoConfig, Trainer};
+
+/// The calling thread's CPU time in seconds (`CLOCK_THREAD_CPUTIME_ID`, Linux; elsewhere wall
+/// time since the first call).
+fn thread_cpu_seconds() -> f64 {
+    #[cfg(target_os = "linux")]
+    {
+        #[repr(C)]
+        struct Timespec {
+            tv_sec: i64,
+            tv_nsec: i64,
+        }
+        extern "C" {
+            fn clock_gettime(clock: i32, tp: *mut Timespec) -> i32;
+        }
+        let mut ts = Timespec {
+            tv_sec: 0,
+            tv_nsec: 0,
+        };
+        // SAFETY: `ts` is a valid, writable timespec; 3 is CLOCK_THREAD_CPUTIME_ID.
+        let rc = unsafe { clock_gettime(3, &mut ts) };
+        assert_eq!(rc, 0, "clock_gettime failed");
+        ts.tv_sec as f64 + ts.tv_nsec as f64 * 1e-9
+    }
+    #[cfg(not(target_os = "linux"))]
+    {
+        static START: std::sync::OnceLock<std::time::Instant> = std::sync::OnceLock::new();
+        START
+            .get_or_init(std::time::Instant::now)
+            .elapsed()
+            .as_secs_f64()
+    }
+}
 
 fn iteration(c: &mut Criterion) {
     pin_kernel_threads();
@@ -38,22 +71,36 @@ fn iteration(c: &mut Criterion) {
         });
         g.finish();
         // Breakdown from the trainer's own timers over 20 more iterations.
-        let (mut ro, mut up) = (0.0, 0.0);
+        let (mut ro, mut up, mut cpu) = (0.0, 0.0, 0.0);
         let k = 20.0;
         for _ in 0..20 {
+            let c0 = thread_cpu_seconds();
             let s = tr.iterate(&mut NoObserver).expect("iterate");
+            cpu += thread_cpu_seconds() - c0;
             ro += s.rollout_seconds;
             up += s.update_seconds;
         }
         let b = batch as f64;
         println!(
-            "{name} update, per iteration of {batch} steps: rollout {:.1} ms ({:.0} steps/s), update {:.1} ms \
+            "{name} update ({} kernels), per iteration of {batch} steps: rollout {:.1} ms ({:.0} steps/s), update {:.1} ms \
              ({:.0} samples/s through {epochs} epochs), end to end {:.0} env-steps/s",
+            KernelPath::active().name(),
             ro / k * 1e3,
             k * b / ro,
             up / k * 1e3,
             k * b * epochs / up,
             k * b / (ro + up)
+        );
+        // On a shared machine the wall figures include time the thread spent descheduled; its
+        // own CPU time does not (the update's share split as in wall time).
+        let share = cpu / (ro + up);
+        println!(
+            "{name} update, thread CPU time: {:.1} ms per iteration (rollout {:.1} ms, update {:.1} ms), \
+             end to end {:.0} env-steps/s; CPU share {share:.2}",
+            cpu / k * 1e3,
+            ro * share / k * 1e3,
+            up * share / k * 1e3,
+            k * b / cpu
         );
     }
 }

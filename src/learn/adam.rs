@@ -1,6 +1,8 @@
 //! Adam (Kingma & Ba, ICLR 2015, Algorithm 1, with bias correction) over plain f32 parameter
 //! slices (moments and arithmetic in f64), plus global gradient-norm clipping; the update runs in plain Rust after candle has
-//! produced the gradients.
+//! produced the gradients, vectorised by the run-time-chosen kernel path (`kernels`).
+
+use super::kernels::{AdamK, KernelPath};
 
 /// Adam hyperparameters.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -58,7 +60,15 @@ impl Adam {
         let p = self.params;
         let c1 = 1.0 - p.beta1.powi(self.t as i32);
         let c2 = 1.0 - p.beta2.powi(self.t as i32);
-        let (b1, b2, eps) = (p.beta1, p.beta2, p.epsilon);
+        let k = AdamK {
+            b1: p.beta1,
+            b2: p.beta2,
+            c1,
+            c2,
+            lr,
+            eps: p.epsilon,
+        };
+        let path = KernelPath::active();
         for (((theta, g), m), v) in params
             .iter_mut()
             .zip(grads)
@@ -66,25 +76,18 @@ impl Adam {
             .zip(&mut self.v)
         {
             assert_eq!(theta.len(), g.len(), "Adam: gradient shape mismatch");
-            for (((x, &gi), mi), vi) in theta.iter_mut().zip(g).zip(m.iter_mut()).zip(v.iter_mut())
-            {
-                let gi = gi as f64;
-                *mi = b1 * *mi + (1.0 - b1) * gi;
-                *vi = b2 * *vi + (1.0 - b2) * gi * gi;
-                let m_hat = *mi / c1;
-                let v_hat = *vi / c2;
-                *x = (*x as f64 - lr * m_hat / (v_hat.sqrt() + eps)) as f32;
-            }
+            path.adam(theta, g, m, v, &k);
         }
     }
 }
 
-/// L2 norm over all gradient tensors together (accumulated in f64).
+/// L2 norm over all gradient tensors together (accumulated in f64: per tensor as 8 interleaved
+/// partial sums, see [`KernelPath::sum_squares`], then over tensors in order).
 pub fn global_norm(grads: &[Vec<f32>]) -> f64 {
+    let path = KernelPath::active();
     grads
         .iter()
-        .flat_map(|g| g.iter())
-        .map(|&x| (x as f64) * (x as f64))
+        .map(|g| path.sum_squares(g))
         .sum::<f64>()
         .sqrt()
 }
@@ -95,11 +98,17 @@ pub fn clip_global_norm(grads: &mut [Vec<f32>], max_norm: f64) -> f64 {
     let norm = global_norm(grads);
     if max_norm > 0.0 && norm > max_norm {
         let s = (max_norm / (norm + 1e-6)) as f32;
-        for g in grads.iter_mut() {
-            g.iter_mut().for_each(|x| *x *= s);
-        }
+        scale_all(grads, s);
     }
     norm
+}
+
+/// Multiply every gradient by `s`.
+pub(crate) fn scale_all<'a>(grads: impl IntoIterator<Item = &'a mut Vec<f32>>, s: f32) {
+    let path = KernelPath::active();
+    for g in grads {
+        path.scale(g, s);
+    }
 }
 
 #[cfg(test)]

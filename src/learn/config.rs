@@ -92,7 +92,7 @@ pub struct PpoConfig {
     /// (common practice).
     pub normalize_advantages: bool,
     /// Compute the update's loss and gradients by the fused path (`learn::fused`: hand-written
-    /// backpropagation over contiguous f32 buffers, matrix products by the `gemm` crate) rather
+    /// backpropagation over contiguous f32 buffers, matrix products by `learn::kernels`) rather
     /// than by candle's autograd. Both compute the same loss (a test holds them within 1e-5);
     /// the fused path is several times faster (benches/learn.rs). Default true.
     pub fused_update: bool,

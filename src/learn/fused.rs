@@ -1,8 +1,8 @@
 //! The fused update path: the PPO loss of one minibatch and its gradients computed by hand over
 //! contiguous f32 buffers — batched forward of both networks, the loss head (clipped surrogate,
-//! value loss, entropy) and backpropagation — with the matrix products done by the `gemm` crate
-//! (the engine candle's CPU backend uses, single-threaded here) and no allocation once the
-//! workspace has grown to the minibatch size.
+//! value loss, entropy) and backpropagation — with the matrix products and element-wise loops of
+//! [`super::kernels`] (AVX-512, AVX2 or portable, picked at run time, the same bits on each) and
+//! no allocation once the workspace has grown to the minibatch size.
 //!
 //! It computes exactly the loss of [`super::ppo::loss_and_grads`] (the generic candle autograd
 //! path): the same formulas, the same fast tanh, the same sub-gradients where a `min`, `max` or
@@ -14,73 +14,12 @@
 //! Goodfellow, Bengio, Courville, "Deep Learning", 2016, section 6.5): `dW = dZ^T H`,
 //! `db = 1^T dZ`, `dH = dZ W`, `dZ_prev = dH * (1 - H^2)`.
 
-use super::activation::tanh_fast;
 use super::config::PpoConfig;
 use super::gaussian::HALF_LN_2PI;
+use super::kernels::KernelPath;
 use super::mlp::Mlp;
 use super::policy::{Policy, LOG_STD_MAX, LOG_STD_MIN};
 use super::ppo::{Minibatch, MinibatchResult};
-
-/// Index one past the last element a strided `rows x cols` view touches.
-fn span(rows: usize, cols: usize, rs: usize, cs: usize) -> usize {
-    if rows == 0 || cols == 0 {
-        0
-    } else {
-        (rows - 1) * rs + (cols - 1) * cs + 1
-    }
-}
-
-/// `C = A B` (or `C += A B` with `accumulate`), `C` row-major m x n, `A` an m x k view with row
-/// and column strides `(a_rs, a_cs)`, `B` a k x n view with strides `(b_rs, b_cs)`. The strides
-/// let transposed operands be read in place.
-#[allow(clippy::too_many_arguments)]
-fn matmul(
-    (m, n, k): (usize, usize, usize),
-    c: &mut [f32],
-    accumulate: bool,
-    a: &[f32],
-    (a_rs, a_cs): (usize, usize),
-    b: &[f32],
-    (b_rs, b_cs): (usize, usize),
-) {
-    assert!(span(m, n, n, 1) <= c.len(), "matmul: C out of bounds");
-    assert!(span(m, k, a_rs, a_cs) <= a.len(), "matmul: A out of bounds");
-    assert!(span(k, n, b_rs, b_cs) <= b.len(), "matmul: B out of bounds");
-    if m == 0 || n == 0 {
-        return;
-    }
-    if k == 0 {
-        if !accumulate {
-            c[..m * n].fill(0.0);
-        }
-        return;
-    }
-    // SAFETY: the asserts above keep every element gemm reads or writes inside the slices; `c`
-    // is borrowed mutably, so it does not alias `a` or `b`.
-    unsafe {
-        gemm::gemm(
-            m,
-            n,
-            k,
-            c.as_mut_ptr(),
-            1,
-            n as isize,
-            accumulate,
-            a.as_ptr(),
-            a_cs as isize,
-            a_rs as isize,
-            b.as_ptr(),
-            b_cs as isize,
-            b_rs as isize,
-            1.0,
-            1.0,
-            false,
-            false,
-            false,
-            gemm::Parallelism::None,
-        );
-    }
-}
 
 /// Per-network buffers for one minibatch.
 #[derive(Clone, Debug, Default)]
@@ -90,33 +29,117 @@ struct NetBuffers {
     /// Gradient with respect to the current layer's pre-activation, and the one below.
     dz: Vec<f32>,
     dz_below: Vec<f32>,
+    /// Each layer's weights transposed (n_in x n_out), as the forward product reads them.
+    wt: Vec<Vec<f32>>,
 }
 
-/// Reusable buffers of the fused path (grow to the largest minibatch seen, then stay).
-#[derive(Clone, Debug, Default)]
+/// Reusable buffers of the fused path (grow to the largest minibatch seen, then stay), and the
+/// kernel path it computes with.
+#[derive(Clone, Debug)]
 pub struct FusedWorkspace {
+    path: KernelPath,
     actor: NetBuffers,
     critic: NetBuffers,
     /// Gradient of the loss with respect to the network outputs (n x out).
     d_out: Vec<f32>,
+    /// Per-sample scratch of the policy head (act_dim each): standardised action, 1 / sigma.
+    z: Vec<f32>,
+    inv_sigma: Vec<f32>,
+}
+
+impl Default for FusedWorkspace {
+    /// A workspace on the process's kernel path ([`KernelPath::active`]).
+    fn default() -> Self {
+        Self::with_path(KernelPath::active())
+    }
+}
+
+impl FusedWorkspace {
+    /// A workspace computing with `path` (panics on use if the CPU lacks it).
+    pub fn with_path(path: KernelPath) -> Self {
+        FusedWorkspace {
+            path,
+            actor: NetBuffers::default(),
+            critic: NetBuffers::default(),
+            d_out: Vec::new(),
+            z: Vec::new(),
+            inv_sigma: Vec::new(),
+        }
+    }
+
+    /// The kernel path this workspace computes with.
+    pub fn path(&self) -> KernelPath {
+        self.path
+    }
 }
 
 /// Buffers for batched inference of one network (the rollout's policy and value passes over all
 /// environments at once); they grow to the largest batch and then stay.
-#[derive(Clone, Debug, Default)]
-pub(crate) struct BatchForward(NetBuffers);
+#[derive(Clone, Debug)]
+pub(crate) struct BatchForward {
+    path: KernelPath,
+    bufs: NetBuffers,
+}
 
-impl BatchForward {
-    /// Outputs of `m` for the `n` rows of `x` (row-major `n x input_dim`), row-major
-    /// `n x output_dim`: the same products and fast tanh as the update's forward pass.
-    pub(crate) fn run(&mut self, m: &Mlp, x: &[f32], n: usize) -> &[f32] {
-        forward(m, x, n, &mut self.0);
-        &self.0.acts[m.layers.len() - 1][..n * m.output_dim()]
+impl Default for BatchForward {
+    fn default() -> Self {
+        Self::with_path(KernelPath::active())
     }
 }
 
-/// Batched forward of `m` on `x` (n rows), filling `bufs.acts`.
-fn forward(m: &Mlp, x: &[f32], n: usize, bufs: &mut NetBuffers) {
+impl BatchForward {
+    /// Batched inference on `path`.
+    pub(crate) fn with_path(path: KernelPath) -> Self {
+        BatchForward {
+            path,
+            bufs: NetBuffers::default(),
+        }
+    }
+
+    /// Take `m`'s current weights (transposed for the products); call again after they change.
+    pub(crate) fn prepare(&mut self, m: &Mlp) {
+        pack(m, &mut self.bufs);
+    }
+
+    /// Outputs of `m` for the `n` rows of `x` (row-major `n x input_dim`), row-major
+    /// `n x output_dim`: the same products and fast tanh as the update's forward pass. `m` must
+    /// be the network last given to [`Self::prepare`], with the same weights.
+    pub(crate) fn run_prepared(&mut self, m: &Mlp, x: &[f32], n: usize) -> &[f32] {
+        forward(self.path, m, x, n, &mut self.bufs);
+        &self.bufs.acts[m.layers.len() - 1][..n * m.output_dim()]
+    }
+
+    /// [`Self::prepare`] then [`Self::run_prepared`].
+    #[cfg(test)]
+    pub(crate) fn run(&mut self, m: &Mlp, x: &[f32], n: usize) -> &[f32] {
+        self.prepare(m);
+        self.run_prepared(m, x, n)
+    }
+}
+
+/// Outputs narrower than this use the dot-product kernel (one vector along the output would be
+/// mostly empty); the same on every path, so every path gives the same bits.
+const NARROW: usize = 8;
+
+/// Transpose each wide layer's weights into `bufs.wt` (n_in x n_out, row-major).
+fn pack(m: &Mlp, bufs: &mut NetBuffers) {
+    bufs.wt.resize_with(m.layers.len(), Vec::new);
+    for (layer, wt) in m.layers.iter().zip(bufs.wt.iter_mut()) {
+        if layer.n_out < NARROW {
+            continue;
+        }
+        wt.resize(layer.n_in * layer.n_out, 0.0);
+        for (o, row) in layer.w.chunks_exact(layer.n_in).enumerate() {
+            for (i, &w) in row.iter().enumerate() {
+                wt[i * layer.n_out + o] = w;
+            }
+        }
+    }
+}
+
+/// Batched forward of `m` on `x` (n rows), filling `bufs.acts`; `bufs.wt` must hold `m`'s
+/// weights packed by [`pack`].
+fn forward(path: KernelPath, m: &Mlp, x: &[f32], n: usize, bufs: &mut NetBuffers) {
     let last = m.layers.len() - 1;
     bufs.acts.resize_with(m.layers.len(), Vec::new);
     for (l, layer) in m.layers.iter().enumerate() {
@@ -124,66 +147,82 @@ fn forward(m: &Mlp, x: &[f32], n: usize, bufs: &mut NetBuffers) {
         let input: &[f32] = if l == 0 { x } else { &below[l - 1] };
         let out = &mut rest[0];
         out.resize(n * layer.n_out, 0.0);
-        for row in out.chunks_exact_mut(layer.n_out) {
-            row.copy_from_slice(&layer.b);
+        let dims = (n, layer.n_out, layer.n_in);
+        if layer.n_out < NARROW {
+            // Z[i][j] = H[i] . W[j] + b[j].
+            path.dots(dims, out, input, &layer.w, &layer.b);
+        } else {
+            // Z = 1 b^T + H W^T, W^T (n_in x n_out) packed.
+            let wt = &bufs.wt[l];
+            assert_eq!(
+                wt.len(),
+                layer.n_in * layer.n_out,
+                "forward: weights not packed"
+            );
+            path.bcast(
+                dims,
+                out,
+                layer.n_out,
+                Some(&layer.b),
+                input,
+                (layer.n_in, 1),
+                wt,
+                layer.n_out,
+            );
         }
-        // Z = H W^T + 1 b^T; W^T (n_in x n_out) is W read with strides (1, n_in).
-        matmul(
-            (n, layer.n_out, layer.n_in),
-            out,
-            true,
-            input,
-            (layer.n_in, 1),
-            &layer.w,
-            (1, layer.n_in),
-        );
         if l < last {
-            out.iter_mut().for_each(|v| *v = tanh_fast(*v));
+            path.tanh_in_place(out);
         }
     }
 }
 
 /// Backpropagate `bufs.dz` (the gradient at the network output, n x out) through `m`, writing
 /// the parameter gradients (w0, b0, w1, b1, ...) into `grads`.
-fn backward(m: &Mlp, x: &[f32], n: usize, bufs: &mut NetBuffers, grads: &mut [Vec<f32>]) {
+fn backward(
+    path: KernelPath,
+    m: &Mlp,
+    x: &[f32],
+    n: usize,
+    bufs: &mut NetBuffers,
+    grads: &mut [Vec<f32>],
+) {
     for l in (0..m.layers.len()).rev() {
         let layer = &m.layers[l];
+        let (n_in, n_out) = (layer.n_in, layer.n_out);
         let input: &[f32] = if l == 0 { x } else { &bufs.acts[l - 1] };
         let (gw, gb) = {
             let (a, b) = grads[2 * l..2 * l + 2].split_at_mut(1);
             (&mut a[0], &mut b[0])
         };
-        gw.resize(layer.n_out * layer.n_in, 0.0);
-        gb.resize(layer.n_out, 0.0);
-        // dW = dZ^T H: dZ^T (n_out x n) is dZ read with strides (1, n_out).
-        matmul(
-            (layer.n_out, layer.n_in, n),
+        gw.resize(n_out * n_in, 0.0);
+        gb.resize(n_out, 0.0);
+        let dz = &bufs.dz[..n * n_out];
+        // dW = dZ^T H: dW[o][i] = sum_s dZ[s][o] H[s][i], dZ^T read with strides (1, n_out).
+        path.bcast(
+            (n_out, n_in, n),
             gw,
-            false,
-            &bufs.dz,
-            (1, layer.n_out),
+            n_in,
+            None,
+            dz,
+            (1, n_out),
             input,
-            (layer.n_in, 1),
+            n_in,
         );
-        gb.fill(0.0);
-        for row in bufs.dz.chunks_exact(layer.n_out).take(n) {
-            gb.iter_mut().zip(row).for_each(|(g, d)| *g += d);
-        }
+        path.column_sums(gb, dz);
         if l > 0 {
-            bufs.dz_below.resize(n * layer.n_in, 0.0);
+            bufs.dz_below.resize(n * n_in, 0.0);
             // dH = dZ W, then through tanh: dZ_below = dH (1 - H^2).
-            matmul(
-                (n, layer.n_in, layer.n_out),
+            path.bcast(
+                (n, n_in, n_out),
                 &mut bufs.dz_below,
-                false,
-                &bufs.dz,
-                (layer.n_out, 1),
+                n_in,
+                None,
+                dz,
+                (n_out, 1),
                 &layer.w,
-                (layer.n_in, 1),
+                n_in,
             );
-            for (d, &h) in bufs.dz_below.iter_mut().zip(&bufs.acts[l - 1]) {
-                *d *= 1.0 - h * h;
-            }
+            path.tanh_grad_in_place(&mut bufs.dz_below, &bufs.acts[l - 1][..n * n_in]);
             std::mem::swap(&mut bufs.dz, &mut bufs.dz_below);
         }
     }
@@ -252,8 +291,11 @@ pub fn loss_and_grads_into(
     let (lo, hi) = ((1.0 - eps) as f32, (1.0 + eps) as f32);
     let (c1, c2) = (cfg.value_coef as f32, cfg.entropy_coef as f32);
 
-    forward(&policy.actor, obs, n, &mut ws.actor);
-    forward(critic, obs, n, &mut ws.critic);
+    let path = ws.path;
+    pack(&policy.actor, &mut ws.actor);
+    pack(critic, &mut ws.critic);
+    forward(path, &policy.actor, obs, n, &mut ws.actor);
+    forward(path, critic, obs, n, &mut ws.critic);
 
     // Parameter gradient buffers: actor w/b per layer, then the log std if learned apart.
     reset_grads(
@@ -284,17 +326,29 @@ pub fn loss_and_grads_into(
         g
     };
     let (mut surrogate_sum, mut entropy_sum) = (0.0f64, 0.0f64);
+    // 1 / sigma per action dimension: once per minibatch when the log std is learned apart,
+    // per sample otherwise; the standardised action z is kept for the gradient below.
+    ws.z.resize(a, 0.0);
+    ws.inv_sigma.resize(a, 0.0);
+    if !state_dependent {
+        for (s, &ls) in ws.inv_sigma.iter_mut().zip(&policy.log_std) {
+            *s = (-ls).exp();
+        }
+    }
     for i in 0..n {
         let row = &mean_out[i * a_out..(i + 1) * a_out];
         let act = &mb.actions[i * a..(i + 1) * a];
         let mut logp = 0.0f32;
         for j in 0..a {
             let ls = if state_dependent {
-                row[a + j].clamp(LOG_STD_MIN, LOG_STD_MAX)
+                let ls = row[a + j].clamp(LOG_STD_MIN, LOG_STD_MAX);
+                ws.inv_sigma[j] = (-ls).exp();
+                ls
             } else {
                 policy.log_std[j]
             };
-            let z = (act[j] - row[j]) * (-ls).exp();
+            let z = (act[j] - row[j]) * ws.inv_sigma[j];
+            ws.z[j] = z;
             logp += -0.5 * z * z - ls;
             if state_dependent {
                 entropy_sum += ls as f64;
@@ -313,23 +367,13 @@ pub fn loss_and_grads_into(
         let d_logp = -inv_n * d_ratio * ratio;
         let d_row = &mut ws.d_out[i * a_out..(i + 1) * a_out];
         for j in 0..a {
-            let raw_ls = if state_dependent {
-                row[a + j]
-            } else {
-                policy.log_std[j]
-            };
-            let ls = if state_dependent {
-                raw_ls.clamp(LOG_STD_MIN, LOG_STD_MAX)
-            } else {
-                raw_ls
-            };
-            let inv_sigma = (-ls).exp();
-            let z = (act[j] - row[j]) * inv_sigma;
+            let (z, inv_sigma) = (ws.z[j], ws.inv_sigma[j]);
             // d logp / d mean = z / sigma; d logp / d log sigma = z^2 - 1.
             d_row[j] = d_logp * z * inv_sigma;
             let d_ls = d_logp * (z * z - 1.0);
             if state_dependent {
                 // Entropy mean over rows: d(-c2 H)/d ls_ij = -c2 / n.
+                let raw_ls = row[a + j];
                 d_row[a + j] = (d_ls - c2 * inv_n) * band_mask(raw_ls, LOG_STD_MIN, LOG_STD_MAX);
             } else {
                 g_log_std[j] += d_ls;
@@ -348,6 +392,7 @@ pub fn loss_and_grads_into(
     }
     std::mem::swap(&mut ws.actor.dz, &mut ws.d_out);
     backward(
+        path,
         &policy.actor,
         obs,
         n,
@@ -379,7 +424,7 @@ pub fn loss_and_grads_into(
         ws.d_out[i] = scale * d;
     }
     std::mem::swap(&mut ws.critic.dz, &mut ws.d_out);
-    backward(critic, obs, n, &mut ws.critic, &mut out.value_grads);
+    backward(path, critic, obs, n, &mut ws.critic, &mut out.value_grads);
 
     out.policy_loss = (-surrogate_sum / n as f64) as f32;
     out.value_loss = (0.5 * value_sum / n as f64) as f32;
@@ -414,8 +459,11 @@ mod tests {
         // must be the per-sample `Mlp::forward` (plain dot products) up to summation order; that
         // reference is itself checked against a hand-computed network in mlp.rs.
         let c = cases::random_case(7, &[25, 64, 64, 2], 16, false, PpoConfig::default());
-        let mut bf = BatchForward::default();
-        for net in [&c.policy.actor, &c.critic] {
+        for (net, path) in [&c.policy.actor, &c.critic]
+            .into_iter()
+            .flat_map(|n| supported_paths().into_iter().map(move |p| (n, p)))
+        {
+            let mut bf = BatchForward::with_path(path);
             let out_dim = net.output_dim();
             let got = bf.run(net, &c.mb.obs, 16).to_vec();
             assert_eq!(got.len(), 16 * out_dim);
@@ -423,7 +471,7 @@ mod tests {
             for (r, x) in c.mb.obs.chunks_exact(25).enumerate() {
                 net.forward_alloc(x, &mut want);
                 for (g, w) in got[r * out_dim..(r + 1) * out_dim].iter().zip(&want) {
-                    assert!(close(*g, *w, w.abs()), "row {r}: {g} vs {w}");
+                    assert!(close(*g, *w, w.abs()), "{path:?} row {r}: {g} vs {w}");
                 }
             }
         }
@@ -436,48 +484,97 @@ mod tests {
         // several shapes, both std variants, the optional loss parts on and off.
         let plain = PpoConfig::default();
         let shapes: [&[usize]; 3] = [&[23, 64, 64, 2], &[7, 16, 16, 16, 3], &[5, 9, 1]];
-        let mut ws = FusedWorkspace::default();
-        let mut got = empty_result();
-        let mut checked = 0;
-        for (k, sizes) in shapes.iter().enumerate() {
-            for sd in [false, true] {
-                for cfg in [plain.clone(), cases::full_loss()] {
-                    let n = [256, 37, 1][k];
-                    let c = cases::random_case(100 + k as u64, sizes, n, sd, cfg);
-                    let want = loss_and_grads(&c.policy, &c.critic, &c.mb, &c.cfg).unwrap();
-                    // The same workspace across cases of different shapes: it must resize.
-                    loss_and_grads_into(&c.policy, &c.critic, &c.mb, &c.cfg, &mut ws, &mut got);
-                    let ctx = format!("shape {sizes:?} sd {sd} clip {}", c.cfg.clip_value_loss);
-                    assert!(close(got.policy_loss, want.policy_loss, 1.0), "{ctx}");
-                    assert!(
-                        close(got.value_loss, want.value_loss, want.value_loss.abs()),
-                        "{ctx}"
-                    );
-                    assert!(
-                        close(got.entropy, want.entropy, want.entropy.abs()),
-                        "{ctx}"
-                    );
-                    for (x, y) in got.ratios.iter().zip(&want.ratios) {
-                        assert!(close(*x, *y, y.abs()), "{ctx}: ratio {x} vs {y}");
-                    }
-                    for (gs, ws_) in [
-                        (&got.policy_grads, &want.policy_grads),
-                        (&got.value_grads, &want.value_grads),
-                    ] {
-                        assert_eq!(gs.len(), ws_.len(), "{ctx}");
-                        for (t, (g, w)) in gs.iter().zip(ws_).enumerate() {
-                            assert_eq!(g.len(), w.len(), "{ctx} tensor {t}");
-                            let scale = w.iter().fold(0.0f32, |m, x| m.max(x.abs()));
-                            for (i, (x, y)) in g.iter().zip(w).enumerate() {
-                                assert!(close(*x, *y, scale), "{ctx} tensor {t}[{i}]: {x} vs {y}");
+        for path in supported_paths() {
+            let mut ws = FusedWorkspace::with_path(path);
+            let mut got = empty_result();
+            let mut checked = 0;
+            for (k, sizes) in shapes.iter().enumerate() {
+                for sd in [false, true] {
+                    for cfg in [plain.clone(), cases::full_loss()] {
+                        let n = [256, 37, 1][k];
+                        let c = cases::random_case(100 + k as u64, sizes, n, sd, cfg);
+                        let want = loss_and_grads(&c.policy, &c.critic, &c.mb, &c.cfg).unwrap();
+                        // The same workspace across cases of different shapes: it must resize.
+                        loss_and_grads_into(&c.policy, &c.critic, &c.mb, &c.cfg, &mut ws, &mut got);
+                        let ctx = format!(
+                            "{} shape {sizes:?} sd {sd} clip {}",
+                            path.name(),
+                            c.cfg.clip_value_loss
+                        );
+                        assert!(close(got.policy_loss, want.policy_loss, 1.0), "{ctx}");
+                        assert!(
+                            close(got.value_loss, want.value_loss, want.value_loss.abs()),
+                            "{ctx}"
+                        );
+                        assert!(
+                            close(got.entropy, want.entropy, want.entropy.abs()),
+                            "{ctx}"
+                        );
+                        for (x, y) in got.ratios.iter().zip(&want.ratios) {
+                            assert!(close(*x, *y, y.abs()), "{ctx}: ratio {x} vs {y}");
+                        }
+                        for (gs, ws_) in [
+                            (&got.policy_grads, &want.policy_grads),
+                            (&got.value_grads, &want.value_grads),
+                        ] {
+                            assert_eq!(gs.len(), ws_.len(), "{ctx}");
+                            for (t, (g, w)) in gs.iter().zip(ws_).enumerate() {
+                                assert_eq!(g.len(), w.len(), "{ctx} tensor {t}");
+                                let scale = w.iter().fold(0.0f32, |m, x| m.max(x.abs()));
+                                for (i, (x, y)) in g.iter().zip(w).enumerate() {
+                                    assert!(
+                                        close(*x, *y, scale),
+                                        "{ctx} tensor {t}[{i}]: {x} vs {y}"
+                                    );
+                                }
                             }
                         }
+                        checked += 1;
                     }
-                    checked += 1;
                 }
             }
+            assert_eq!(checked, 12);
         }
-        assert_eq!(checked, 12);
+    }
+
+    fn supported_paths() -> Vec<KernelPath> {
+        KernelPath::ALL
+            .into_iter()
+            .filter(|p| p.supported())
+            .collect()
+    }
+
+    #[test]
+    fn every_kernel_path_gives_the_same_bits() {
+        // The kernels fix each output's summation order, so the vector width must not change
+        // a single bit of the losses or gradients (a study reproduces across CPUs).
+        let c = cases::random_case(9, &[25, 64, 64, 2], 256, false, cases::full_loss());
+        let run = |p: KernelPath| {
+            let mut ws = FusedWorkspace::with_path(p);
+            let mut out = empty_result();
+            loss_and_grads_into(&c.policy, &c.critic, &c.mb, &c.cfg, &mut ws, &mut out);
+            let mut bits = vec![
+                out.policy_loss.to_bits(),
+                out.value_loss.to_bits(),
+                out.entropy.to_bits(),
+            ];
+            bits.extend(out.ratios.iter().map(|x| x.to_bits()));
+            for g in out.policy_grads.iter().chain(&out.value_grads) {
+                bits.extend(g.iter().map(|x| x.to_bits()));
+            }
+            bits
+        };
+        let paths = supported_paths();
+        let first = run(paths[0]);
+        assert!(first.len() > 10_000);
+        for &p in &paths[1..] {
+            assert!(
+                run(p) == first,
+                "{} differs from {}",
+                p.name(),
+                paths[0].name()
+            );
+        }
     }
 
     #[test]

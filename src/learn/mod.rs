@@ -5,9 +5,9 @@
 //! Two update paths compute the same losses and gradients (`fused::tests` checks them within
 //! 1e-5): the generic one through candle's autograd (`ppo::loss_and_grads`, any network shape,
 //! also in f64 for the finite-difference check), and the default fused one (`fused`, hand-written
-//! backward passes over contiguous f32 buffers with the `gemm` crate's small-matrix products, no
-//! allocation after the first minibatch), chosen by `PpoConfig::fused_update`. Rollouts use a
-//! plain-Rust forward pass. Throughput on one core: `cargo bench --bench learn -- ppo_iteration`.
+//! backward passes over contiguous f32 buffers with the small-matrix kernels of `kernels`, chosen
+//! at run time: AVX-512, AVX2 or portable, same bits on each; no allocation after the first
+//! minibatch), chosen by `PpoConfig::fused_update`. Rollouts use a plain-Rust forward pass. Throughput on one core: `cargo bench --bench learn -- ppo_iteration`.
 //!
 //! Methods and sources:
 //! - PPO: Schulman, Wolski, Dhariwal, Radford, Klimov, "Proximal Policy Optimization Algorithms",
@@ -43,6 +43,7 @@ mod error;
 pub mod fused;
 pub mod gae;
 pub mod gaussian;
+pub mod kernels;
 mod mlp;
 mod normalize;
 mod observer;

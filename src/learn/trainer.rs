@@ -9,7 +9,7 @@ use rand::seq::SliceRandom;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 
-use super::adam::{clip_global_norm, global_norm, Adam, AdamParams};
+use super::adam::{clip_global_norm, global_norm, scale_all, Adam, AdamParams};
 use super::buffer::RolloutBuffer;
 use super::checkpoint;
 use super::config::PpoConfig;
@@ -291,6 +291,8 @@ impl Trainer {
         let n_env = self.cfg.num_envs;
         let out_dim = self.policy.actor.output_dim();
         self.step_obs.resize(n_env * o_dim, 0.0);
+        self.step_actor.prepare(&self.policy.actor);
+        self.step_critic.prepare(&self.critic);
         for t in 0..self.cfg.rollout_steps {
             // Normalise every environment's observation (the statistics stay frozen during the
             // rollout), then run the policy and value networks over all of them in one batch.
@@ -312,8 +314,10 @@ impl Trainer {
             }
             let means = self
                 .step_actor
-                .run(&self.policy.actor, &self.step_obs, n_env);
-            let values = self.step_critic.run(&self.critic, &self.step_obs, n_env);
+                .run_prepared(&self.policy.actor, &self.step_obs, n_env);
+            let values = self
+                .step_critic
+                .run_prepared(&self.critic, &self.step_obs, n_env);
             for e in 0..n_env {
                 let i = self.buf.index(e, t);
                 let raw = &mut self.raw_obs[e * o_dim..(e + 1) * o_dim];
@@ -504,9 +508,7 @@ impl Trainer {
             let joint = (pn * pn + vn * vn).sqrt();
             if max > 0.0 && joint > max {
                 let s = (max / (joint + 1e-6)) as f32;
-                for g in pg.iter_mut().chain(vg.iter_mut()) {
-                    g.iter_mut().for_each(|x| *x *= s);
-                }
+                scale_all(pg.iter_mut().chain(vg.iter_mut()), s);
             }
             (pn, vn)
         }
