@@ -436,13 +436,21 @@ fn check_error(e: &ConfigError, origin: &str, src: &str) -> Result<(), TestCaseE
 fn check_scenario_bounds(s: &Scenario) -> Result<(), TestCaseError> {
     prop_assert!(s.horizon >= 1 && s.horizon as i64 <= sc::MAX_HORIZON);
     prop_assert!(s.substeps >= 1 && s.substeps as i64 <= sc::MAX_SUBSTEPS);
+    prop_assert!((s.horizon * s.substeps) as i64 <= sc::MAX_EPISODE_PHYSICS_STEPS);
     prop_assert!(s.dt > 0.0 && s.dt <= sc::MAX_DT);
     prop_assert!(s.obstacles.len() <= sc::MAX_OBSTACLES);
     prop_assert!(s.events.goal_jump_times.len() <= sc::MAX_GOAL_JUMP_TIMES);
     prop_assert!((0.0..=sc::MAX_GOAL_JUMP_RATE).contains(&s.events.goal_jump_rate));
     prop_assert!(s.arm.reach().is_finite());
     prop_assert!(
-        sc::check_goal(&s.arm, s.goal, s.workspace_min, s.workspace_max).is_ok(),
+        sc::check_goal(
+            &s.arm,
+            s.goal,
+            s.goal_tolerance,
+            s.workspace_min,
+            s.workspace_max
+        )
+        .is_ok(),
         "accepted an unreachable goal {:?}",
         s.goal
     );

@@ -90,8 +90,14 @@ pub fn run_plan(args: &PlanArgs) -> Result<PlanOutputs, PlanCommandError> {
     }
     let goal = args.goal.unwrap_or(sc.goal);
     if args.goal.is_some() {
-        crate::sim::scenario::check_goal(&sc.arm, goal, sc.workspace_min, sc.workspace_max)
-            .map_err(|m| PlanCommandError::Args(format!("--goal {m}")))?;
+        crate::sim::scenario::check_goal(
+            &sc.arm,
+            goal,
+            sc.goal_tolerance,
+            sc.workspace_min,
+            sc.workspace_max,
+        )
+        .map_err(|m| PlanCommandError::Args(format!("--goal {m}")))?;
     }
     let sc = Arc::new(sc);
     let env = ArmEnv::new(sc.clone());

@@ -206,7 +206,9 @@ pub const MAX_LINK_LENGTH: f64 = 100.0;
 /// Most physics steps per control step (`physics.substeps`).
 pub const MAX_SUBSTEPS: i64 = 1_000;
 /// Most control steps per episode (`physics.horizon`).
-pub const MAX_HORIZON: i64 = 100_000;
+pub const MAX_HORIZON: i64 = 1_000_000;
+/// Most physics steps per episode (`physics.horizon * physics.substeps`).
+pub const MAX_EPISODE_PHYSICS_STEPS: i64 = 10_000_000;
 /// Most obstacles (`[[obstacle]]` tables, and `random.obstacle_count` max).
 pub const MAX_OBSTACLES: usize = 100;
 /// Most entries of `events.goal_jump_times`.
@@ -214,10 +216,17 @@ pub const MAX_GOAL_JUMP_TIMES: usize = 1_000;
 /// Largest `events.goal_jump_rate`, jumps per second (every jump replans the reference path).
 pub const MAX_GOAL_JUMP_RATE: f64 = 10.0;
 
-/// Why `goal` cannot be a goal of `arm` in the workspace [wmin, wmax], if it cannot: outside the
-/// workspace, or outside the annulus the effector reaches (outer radius the sum of the link lengths,
-/// inner radius the longest link minus the others; joint limits and obstacles are the planner's business).
-pub fn check_goal(arm: &Arm, goal: [f64; 2], wmin: [f64; 2], wmax: [f64; 2]) -> Result<(), String> {
+/// Why `goal` (with a goal region of radius `tolerance`) cannot be a goal of `arm` in the workspace
+/// [wmin, wmax], if it cannot: outside the workspace, or a goal region that misses the annulus the effector
+/// reaches (outer radius the sum of the link lengths, inner radius the longest link minus the others; joint
+/// limits and obstacles are the planner's business).
+pub fn check_goal(
+    arm: &Arm,
+    goal: [f64; 2],
+    tolerance: f64,
+    wmin: [f64; 2],
+    wmax: [f64; 2],
+) -> Result<(), String> {
     if (0..2).any(|k| goal[k] < wmin[k] || goal[k] > wmax[k]) {
         return Err(format!(
             "{goal:?} lies outside the workspace {wmin:?}..{wmax:?}"
@@ -227,14 +236,14 @@ pub fn check_goal(arm: &Arm, goal: [f64; 2], wmin: [f64; 2], wmax: [f64; 2]) -> 
     let reach = arm.reach();
     let longest = arm.links.iter().map(|l| l.length).fold(0.0, f64::max);
     let inner = (2.0 * longest - reach).max(0.0);
-    if r > reach + 1e-9 {
+    if r > reach + tolerance {
         return Err(format!(
-            "{goal:?} is out of reach: {r:.4} m from the base, the arm reaches {reach:.4} m"
+            "{goal:?} is out of reach: {r:.4} m from the base, the arm reaches {reach:.4} m (goal tolerance {tolerance} m)"
         ));
     }
-    if r < inner - 1e-9 {
+    if r < inner - tolerance {
         return Err(format!(
-            "{goal:?} is out of reach: {r:.4} m from the base, the arm cannot fold closer than {inner:.4} m"
+            "{goal:?} is out of reach: {r:.4} m from the base, the arm cannot fold closer than {inner:.4} m (goal tolerance {tolerance} m)"
         ));
     }
     Ok(())
@@ -473,6 +482,16 @@ impl Scenario {
                 ),
             ));
         }
+        let physics_steps = raw.physics.horizon * raw.physics.substeps;
+        if physics_steps > MAX_EPISODE_PHYSICS_STEPS {
+            return Err(err(
+                "physics.horizon",
+                format!(
+                    "horizon x substeps = {physics_steps} physics steps per episode; at most \
+                     {MAX_EPISODE_PHYSICS_STEPS} are allowed"
+                ),
+            ));
+        }
         let reach = arm.reach();
         let margin = reach + 0.2;
         let wmin = raw.workspace.min.unwrap_or([-margin, -margin]);
@@ -519,7 +538,8 @@ impl Scenario {
             finite(origin, src, "goal.position", raw.goal.position[k])?;
         }
         let goal_tolerance = positive(origin, src, "goal.tolerance", raw.goal.tolerance)?;
-        check_goal(&arm, raw.goal.position, wmin, wmax).map_err(|m| err("goal.position", m))?;
+        check_goal(&arm, raw.goal.position, goal_tolerance, wmin, wmax)
+            .map_err(|m| err("goal.position", m))?;
         if raw.obstacle.len() > MAX_OBSTACLES {
             return Err(err(
                 "obstacle",
