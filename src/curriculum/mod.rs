@@ -314,7 +314,7 @@ impl CurriculumSpec {
                         &format!("stages[{i}].jump_rate"),
                         format!(
                             "must be in [0, {max_rate}] jumps per second, got {}",
-                            s.jump_rate
+                            crate::config::num(s.jump_rate)
                         ),
                     ));
                 }

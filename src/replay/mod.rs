@@ -336,7 +336,7 @@ fn check_fit(
     };
     let refuse = |what: &str, theirs: &str, ours: &str| {
         Err(ReplayError::Bad(format!(
-            "checkpoint {} was trained for {what} {theirs}, but {target} gives {ours}; replay it with the              experiment, variant and scenario it was trained with",
+            "checkpoint {} was trained for {what} {theirs}, but {target} gives {ours}; replay it with the experiment, variant and scenario it was trained with",
             path.display()
         )))
     };

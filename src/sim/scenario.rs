@@ -373,7 +373,10 @@ impl Scenario {
             if length > MAX_LINK_LENGTH {
                 return Err(err(
                     &p("length"),
-                    format!("must be at most {MAX_LINK_LENGTH} m, got {length}"),
+                    format!(
+                        "must be at most {MAX_LINK_LENGTH} m, got {}",
+                        crate::config::num(length)
+                    ),
                 ));
             }
             let mass = positive(origin, src, &p("mass"), l.mass)?;
@@ -461,7 +464,7 @@ impl Scenario {
         if dt > MAX_DT {
             return Err(err(
                 "physics.dt",
-                format!("must be at most {MAX_DT} s, got {dt}"),
+                format!("must be at most {MAX_DT} s, got {}", crate::config::num(dt)),
             ));
         }
         if !(1..=MAX_SUBSTEPS).contains(&raw.physics.substeps) {
@@ -664,7 +667,10 @@ impl Scenario {
         if !(0.0..=MAX_GOAL_JUMP_RATE).contains(&rate) {
             return Err(err(
                 "events.goal_jump_rate",
-                format!("must be in [0, {MAX_GOAL_JUMP_RATE}] jumps per second, got {rate}"),
+                format!(
+                    "must be in [0, {MAX_GOAL_JUMP_RATE}] jumps per second, got {}",
+                    crate::config::num(rate)
+                ),
             ));
         }
         let replan_margin = positive(
