@@ -152,6 +152,16 @@ pub fn locate_line(src: &str, path: &str) -> Option<usize> {
     }
 }
 
+/// A number as an error message shows it: scientific notation when very large or very small, so a 1e300
+/// stays short.
+pub fn num(x: f64) -> String {
+    if x.is_finite() && x != 0.0 && !(1e-4..1e6).contains(&x.abs()) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
+}
+
 /// Check that a number is finite, naming the key when it is not.
 pub fn finite(origin: &str, src: &str, path: &str, v: f64) -> Result<f64, ConfigError> {
     if v.is_finite() {
@@ -161,7 +171,7 @@ pub fn finite(origin: &str, src: &str, path: &str, v: f64) -> Result<f64, Config
             origin,
             src,
             path,
-            format!("must be a finite number, got {v}"),
+            format!("must be a finite number, got {}", num(v)),
         ))
     }
 }
@@ -175,7 +185,7 @@ pub fn positive(origin: &str, src: &str, path: &str, v: f64) -> Result<f64, Conf
             origin,
             src,
             path,
-            format!("must be a finite number > 0, got {v}"),
+            format!("must be a finite number > 0, got {}", num(v)),
         ))
     }
 }
@@ -219,6 +229,15 @@ mod tests {
     fn missing_key_is_reported() {
         let e = parse_toml::<Doc>("[a]\n", "f.toml").unwrap_err();
         assert!(e.to_string().contains("missing field `x`"), "{e}");
+    }
+
+    #[test]
+    fn numbers_in_messages_stay_short() {
+        assert_eq!(num(1e300), "1e300");
+        assert_eq!(num(-2.5e-7), "-2.5e-7");
+        assert_eq!(num(0.3), "0.3");
+        assert_eq!(num(0.0), "0");
+        assert_eq!(num(f64::NAN), "NaN");
     }
 
     #[test]

@@ -40,8 +40,54 @@ pub fn temp_sibling(path: &Path) -> PathBuf {
     }
 }
 
+/// Whether process `pid` exists on this machine. Reads `/proc/<pid>` (Linux); where `/proc` is not
+/// mounted every process counts as alive, so callers fall back to their heartbeat rule.
+pub fn pid_alive(pid: u32) -> bool {
+    if !Path::new("/proc/self").exists() {
+        return true;
+    }
+    Path::new("/proc").join(pid.to_string()).exists()
+}
+
+/// Remove temporary files left in `dir` by writers that died mid-write (see [`temp_sibling`]).
+/// With `all`, every temp file goes (the caller holds the folder's lock, so no one else writes there);
+/// otherwise only those of dead processes on this host. Returns how many were removed.
+pub fn remove_stale_temps(dir: &Path, all: bool) -> std::io::Result<usize> {
+    let entries = match std::fs::read_dir(dir) {
+        Ok(e) => e,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(0),
+        Err(e) => return Err(e),
+    };
+    let host = host_tag();
+    let mut removed = 0;
+    for e in entries {
+        let e = e?;
+        let name = e.file_name().to_string_lossy().into_owned();
+        let Some((_, owner)) = name.strip_prefix('.').and_then(|n| n.rsplit_once(".tmp-")) else {
+            continue;
+        };
+        let dead = || {
+            // owner = `<host>-<pid>-<n>`; the host may itself contain `-`.
+            let mut parts = owner.rsplitn(3, '-');
+            let (_n, pid, h) = (parts.next(), parts.next(), parts.next());
+            match (pid.and_then(|p| p.parse::<u32>().ok()), h) {
+                (Some(pid), Some(h)) => h == host && !pid_alive(pid),
+                _ => false,
+            }
+        };
+        if all || dead() {
+            match std::fs::remove_file(e.path()) {
+                Ok(()) => removed += 1,
+                Err(err) if err.kind() == std::io::ErrorKind::NotFound => {}
+                Err(err) => return Err(err),
+            }
+        }
+    }
+    Ok(removed)
+}
+
 /// This machine's host name (letters, digits and `-` only), or `host` when it cannot be read.
-fn host_tag() -> String {
+pub fn host_tag() -> String {
     let raw = std::fs::read_to_string("/proc/sys/kernel/hostname")
         .or_else(|_| std::env::var("HOSTNAME"))
         .unwrap_or_default();
@@ -75,6 +121,26 @@ mod tests {
             .filter(|e| e.file_name().to_string_lossy().contains(".tmp-"))
             .collect();
         assert!(leftovers.is_empty());
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
+    fn stale_temps_of_dead_writers_are_removed() {
+        let dir = std::env::temp_dir().join(format!("termwise-fsio-stale-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let host = host_tag();
+        // Process ids above the kernel's pid_max (at most 2^22 on Linux, proc(5)) are never alive.
+        let dead = dir.join(format!(".run.json.tmp-{host}-4999999-0"));
+        let mine = dir.join(format!(".run.json.tmp-{host}-{}-7", std::process::id()));
+        let other_host = dir.join(".run.json.tmp-elsewhere-4999999-0");
+        for p in [&dead, &mine, &other_host] {
+            std::fs::write(p, b"x").unwrap();
+        }
+        std::fs::write(dir.join("run.json"), b"{}").unwrap();
+        assert_eq!(remove_stale_temps(&dir, false).unwrap(), 1);
+        assert!(!dead.exists() && mine.exists() && other_host.exists());
+        assert_eq!(remove_stale_temps(&dir, true).unwrap(), 2);
+        assert!(dir.join("run.json").exists());
         std::fs::remove_dir_all(&dir).unwrap();
     }
 

@@ -40,8 +40,8 @@ enum Command {
     Run {
         /// Experiment TOML file.
         experiment: PathBuf,
-        /// Worker threads (each run is single-threaded). Default: the number of cores.
-        #[arg(long)]
+        /// Worker threads (each run is single-threaded), at least 1. Default: the number of cores.
+        #[arg(long, value_parser = parse_jobs)]
         jobs: Option<usize>,
         /// Results folder. Default: results/<study name>.
         #[arg(long)]
@@ -57,8 +57,8 @@ enum Command {
     Check {
         /// Experiment TOML file.
         experiment: PathBuf,
-        /// Worker threads assumed for the estimate. Default: the number of cores.
-        #[arg(long)]
+        /// Worker threads assumed for the estimate, at least 1. Default: the number of cores.
+        #[arg(long, value_parser = parse_jobs)]
         jobs: Option<usize>,
         /// Skip the calibration (no estimate of wall time).
         #[arg(long)]
@@ -187,6 +187,15 @@ fn cores() -> usize {
         .unwrap_or(1)
 }
 
+/// Parse a worker count: an integer of at least 1.
+fn parse_jobs(s: &str) -> Result<usize, String> {
+    match s.trim().parse::<usize>() {
+        Ok(n) if n >= 1 => Ok(n),
+        Ok(_) => Err("must be at least 1 worker".into()),
+        Err(e) => Err(format!("{e} in {s:?}")),
+    }
+}
+
 /// Parse `X,Y` into a point.
 fn parse_point(s: &str) -> Result<[f64; 2], String> {
     let parts: Vec<&str> = s.split(',').collect();
@@ -215,6 +224,9 @@ fn init_logging(verbose: u8) {
         .with_writer(std::io::stderr)
         .try_init();
 }
+
+/// Exit code of a command stopped by Ctrl-C (128 + SIGINT, as shells report it).
+const INTERRUPTED: u8 = 130;
 
 /// Print an error on one line and map it to an exit code: 2 for bad input, 1 otherwise.
 fn fail(e: &dyn std::fmt::Display, bad_input: bool) -> ExitCode {
@@ -251,20 +263,35 @@ fn main() -> ExitCode {
             let stop = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
             let flag = stop.clone();
             let _ = ctrlc::set_handler(move || {
-                eprintln!("termwise: stopping after the current iteration (runs are marked interrupted)...");
-                flag.store(true, std::sync::atomic::Ordering::SeqCst);
+                if flag.swap(true, std::sync::atomic::Ordering::SeqCst) {
+                    // A second Ctrl-C: leave now. Files are written atomically and the run locks of this
+                    // dead process are reclaimed at once by the next `run` on this host.
+                    eprintln!("termwise: interrupted again; exiting now");
+                    std::process::exit(INTERRUPTED.into());
+                }
+                eprintln!("termwise: stopping after the current iteration (runs are marked interrupted; Ctrl-C again to quit now)...");
             });
-            match termwise::study::cli_run(
+            let result = termwise::study::cli_run(
                 &experiment,
                 jobs.unwrap_or_else(cores),
                 out,
                 cell,
                 !no_report,
                 &stop,
-            ) {
+            );
+            let interrupted = stop.load(std::sync::atomic::Ordering::SeqCst);
+            match result {
                 Ok(text) => {
                     println!("{text}");
-                    ExitCode::SUCCESS
+                    if interrupted {
+                        ExitCode::from(INTERRUPTED)
+                    } else {
+                        ExitCode::SUCCESS
+                    }
+                }
+                Err(e) if interrupted => {
+                    eprintln!("termwise: error: {e}");
+                    ExitCode::from(INTERRUPTED)
                 }
                 Err(e) => fail(&e, e.is_bad_input()),
             }
@@ -335,7 +362,13 @@ fn main() -> ExitCode {
                         o.csv.display(),
                         o.png.map(|p| format!(" and {}", p.display())).unwrap_or_default()
                     );
-                    ExitCode::SUCCESS
+                    if o.report.path.fallback {
+                        // The drawing shows the straight-line fallback; say so in the exit code too.
+                        eprintln!("termwise: error: no collision-free path found within the planner's budget; the drawn path is the straight-line fallback (raise plan.iterations or plan.time_budget_ms, or move the goal)");
+                        ExitCode::from(1)
+                    } else {
+                        ExitCode::SUCCESS
+                    }
                 }
                 Err(e) => fail(&e, e.is_bad_input()),
             }

@@ -12,7 +12,7 @@ fn pendulum(theta0: f64, dt: f64) -> (Arc<Scenario>, f64) {
     let src = format!(
         "[arm]\ncontrol = \"torque\"\ngravity = 9.81\n[[arm.link]]\nlength = 0.8\nmass = 1.3\ncom = 0.3\ninertia = 0.05\n\
          [physics]\nintegrator = \"rk4\"\ndt = {dt}\nsubsteps = 1\nhorizon = 1000000\n\
-         [workspace]\nmin = [-5.0, -5.0]\nmax = [5.0, 5.0]\n[start]\nq = [{q0}]\n[goal]\nposition = [0.5, 0.0]\n"
+         [workspace]\nmin = [-5.0, -5.0]\nmax = [5.0, 5.0]\n[start]\nq = [{q0}]\n[goal]\nposition = [0.8, 0.0]\n"
     );
     (
         Arc::new(Scenario::from_toml_str(&src, "pendulum").unwrap()),

@@ -93,6 +93,11 @@ impl SuccessWindow {
     }
 }
 
+/// Most episodes in a curriculum's success window (`window`).
+pub const MAX_WINDOW: usize = 100_000;
+/// Most stages of the `staged` curriculum.
+pub const MAX_STAGES: usize = 100;
+
 /// The `[curriculum]` table: `kind` plus the parameters of that kind (others are rejected).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -281,12 +286,20 @@ impl CurriculumSpec {
                 ));
             }
         }
-        if self.window == Some(0) {
-            return Err(err("window", "must be >= 1 episode".into()));
+        if let Some(w) = self.window {
+            if w == 0 || w > MAX_WINDOW {
+                return Err(err(
+                    "window",
+                    format!("must be in 1..={MAX_WINDOW} episodes, got {w}"),
+                ));
+            }
         }
         if let Some(stages) = &self.stages {
-            if stages.is_empty() {
-                return Err(err("stages", "needs at least one stage".into()));
+            if stages.is_empty() || stages.len() > MAX_STAGES {
+                return Err(err(
+                    "stages",
+                    format!("needs 1 to {MAX_STAGES} stages, got {}", stages.len()),
+                ));
             }
             for (i, s) in stages.iter().enumerate() {
                 if !(s.goal_distance.is_finite() && s.goal_distance > 0.0) {
@@ -295,10 +308,14 @@ impl CurriculumSpec {
                         format!("must be > 0 m, got {}", s.goal_distance),
                     ));
                 }
-                if !(s.jump_rate.is_finite() && s.jump_rate >= 0.0) {
+                let max_rate = crate::sim::scenario::MAX_GOAL_JUMP_RATE;
+                if !(s.jump_rate.is_finite() && (0.0..=max_rate).contains(&s.jump_rate)) {
                     return Err(err(
                         &format!("stages[{i}].jump_rate"),
-                        format!("must be >= 0 per second, got {}", s.jump_rate),
+                        format!(
+                            "must be in [0, {max_rate}] jumps per second, got {}",
+                            crate::config::num(s.jump_rate)
+                        ),
                     ));
                 }
             }

@@ -42,6 +42,28 @@ pub struct Sidecar {
     pub iteration: u64,
     /// The learner settings of the run.
     pub config: PpoConfig,
+    /// What the policy was trained for (absent in checkpoints written before it was recorded).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub trained_for: Option<TrainedFor>,
+}
+
+/// What a checkpoint's policy was trained for, recorded by whoever trains it (the study runner) and
+/// compared by whoever replays it. Plain strings, so `learn` needs to know nothing of tasks.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TrainedFor {
+    /// Study name.
+    pub study: String,
+    /// Variant name.
+    pub variant: String,
+    /// Seed of the run.
+    pub seed: u64,
+    /// Config hash of the run (identifies everything that determined its results).
+    pub config_hash: String,
+    /// The arm the policy drives: joints, link lengths, control mode.
+    pub arm: String,
+    /// The observation layout, with its length.
+    pub observation: String,
 }
 
 /// What a checkpoint stores (borrowed from the trainer).
@@ -58,6 +80,8 @@ pub struct CheckpointParts<'a> {
     pub env_steps: u64,
     /// Iterations so far.
     pub iteration: u64,
+    /// What the policy is trained for, if known.
+    pub trained_for: Option<&'a TrainedFor>,
 }
 
 /// The sidecar path of a checkpoint: `policy.safetensors` -> `policy.json`.
@@ -160,6 +184,7 @@ pub fn save(path: &Path, parts: &CheckpointParts) -> Result<(), LearnError> {
         env_steps: parts.env_steps,
         iteration: parts.iteration,
         config: parts.config.clone(),
+        trained_for: parts.trained_for.cloned(),
     };
     let json = serde_json::to_vec_pretty(&side).expect("sidecar serialises");
     let io = |path: &Path, source| LearnError::Io {
@@ -213,7 +238,8 @@ pub fn load(path: &Path) -> Result<Loaded, LearnError> {
         path: path.to_path_buf(),
         source,
     })?;
-    let map = candle_core::safetensors::load_buffer(&bytes, &Device::Cpu)?;
+    let map = candle_core::safetensors::load_buffer(&bytes, &Device::Cpu)
+        .map_err(|e| bad(format!("not a readable safetensors file: {e}")))?;
     let (o, a, sd) = (side.obs_dim, side.act_dim, side.state_dependent_std);
     let mut sizes = vec![o];
     sizes.extend(&side.hidden);

@@ -131,6 +131,19 @@ impl Default for PpoConfig {
     }
 }
 
+/// Most environments per run (`num_envs`).
+pub const MAX_NUM_ENVS: usize = 1_024;
+/// Most steps per environment per rollout (`rollout_steps`).
+pub const MAX_ROLLOUT_STEPS: usize = 100_000;
+/// Most samples per iteration (`num_envs * rollout_steps`); bounds the rollout buffer's memory.
+pub const MAX_BATCH: usize = 1_000_000;
+/// Most passes over a rollout per update (`epochs`).
+pub const MAX_EPOCHS: usize = 1_000;
+/// Most hidden layers (`hidden`).
+pub const MAX_LAYERS: usize = 16;
+/// Widest hidden layer (`hidden`).
+pub const MAX_WIDTH: usize = 4_096;
+
 fn bad(field: &'static str, reason: impl Into<String>) -> LearnError {
     LearnError::InvalidConfig {
         field,
@@ -149,14 +162,35 @@ impl PpoConfig {
         let unit = |x: f64| (0.0..=1.0).contains(&x);
         let pos = |x: f64| x.is_finite() && x > 0.0;
         let nonneg = |x: f64| x.is_finite() && x >= 0.0;
-        if self.num_envs == 0 {
-            return Err(bad("num_envs", "must be at least 1"));
+        if self.num_envs == 0 || self.num_envs > MAX_NUM_ENVS {
+            return Err(bad(
+                "num_envs",
+                format!("must be in 1..={MAX_NUM_ENVS}, got {}", self.num_envs),
+            ));
         }
-        if self.rollout_steps == 0 {
-            return Err(bad("rollout_steps", "must be at least 1"));
+        if self.rollout_steps == 0 || self.rollout_steps > MAX_ROLLOUT_STEPS {
+            return Err(bad(
+                "rollout_steps",
+                format!(
+                    "must be in 1..={MAX_ROLLOUT_STEPS}, got {}",
+                    self.rollout_steps
+                ),
+            ));
         }
-        if self.epochs == 0 {
-            return Err(bad("epochs", "must be at least 1"));
+        if self.batch_size() > MAX_BATCH {
+            return Err(bad(
+                "rollout_steps",
+                format!(
+                    "num_envs * rollout_steps = {} samples per iteration; at most {MAX_BATCH} are allowed",
+                    self.batch_size()
+                ),
+            ));
+        }
+        if self.epochs == 0 || self.epochs > MAX_EPOCHS {
+            return Err(bad(
+                "epochs",
+                format!("must be in 1..={MAX_EPOCHS}, got {}", self.epochs),
+            ));
         }
         if self.minibatch_size == 0 || self.minibatch_size > self.batch_size() {
             return Err(bad(
@@ -198,8 +232,14 @@ impl PpoConfig {
         if !nonneg(self.max_grad_norm) {
             return Err(bad("max_grad_norm", "must be >= 0 (0 disables clipping)"));
         }
-        if self.hidden.is_empty() || self.hidden.contains(&0) {
-            return Err(bad("hidden", "needs at least one layer, each wider than 0"));
+        if self.hidden.is_empty()
+            || self.hidden.len() > MAX_LAYERS
+            || self.hidden.iter().any(|&w| w == 0 || w > MAX_WIDTH)
+        {
+            return Err(bad(
+                "hidden",
+                format!("needs 1 to {MAX_LAYERS} layers, each 1 to {MAX_WIDTH} wide"),
+            ));
         }
         if !self.init_log_std.is_finite() || self.init_log_std.abs() > 5.0 {
             return Err(bad("init_log_std", "must be in [-5, 5]"));

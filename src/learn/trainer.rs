@@ -204,6 +204,16 @@ impl Trainer {
     /// Write the current weights and normalisation statistics to `path` (safetensors) and a
     /// JSON sidecar beside it; see [`checkpoint::save`].
     pub fn save_checkpoint(&self, path: &Path) -> Result<(), LearnError> {
+        self.save_checkpoint_for(path, None)
+    }
+
+    /// [`Trainer::save_checkpoint`] with a record of what the policy is trained for (task, observation
+    /// layout, configuration), written into the sidecar so a replay can refuse a mismatch.
+    pub fn save_checkpoint_for(
+        &self,
+        path: &Path,
+        trained_for: Option<&checkpoint::TrainedFor>,
+    ) -> Result<(), LearnError> {
         checkpoint::save(
             path,
             &checkpoint::CheckpointParts {
@@ -213,6 +223,7 @@ impl Trainer {
                 config: &self.cfg,
                 env_steps: self.env_steps,
                 iteration: self.iteration,
+                trained_for,
             },
         )
     }

@@ -89,6 +89,16 @@ pub fn run_plan(args: &PlanArgs) -> Result<PlanOutputs, PlanCommandError> {
         sc = sc.randomized(&mut rng);
     }
     let goal = args.goal.unwrap_or(sc.goal);
+    if args.goal.is_some() {
+        crate::sim::scenario::check_goal(
+            &sc.arm,
+            goal,
+            sc.goal_tolerance,
+            sc.workspace_min,
+            sc.workspace_max,
+        )
+        .map_err(|m| PlanCommandError::Args(format!("--goal {m}")))?;
+    }
     let sc = Arc::new(sc);
     let env = ArmEnv::new(sc.clone());
     let n = sc.n();

@@ -30,7 +30,13 @@ pub enum ReplayError {
 
 impl ReplayError {
     pub fn is_bad_input(&self) -> bool {
-        matches!(self, ReplayError::Config(_) | ReplayError::Bad(_))
+        use crate::learn::LearnError;
+        matches!(
+            self,
+            ReplayError::Config(_)
+                | ReplayError::Bad(_)
+                | ReplayError::Checkpoint(LearnError::Checkpoint { .. } | LearnError::Io { .. })
+        )
     }
 }
 
@@ -299,6 +305,82 @@ fn pick_variant(exp: &Experiment, name: &Option<String>) -> Result<VariantSpec, 
     }
 }
 
+/// Refuse a checkpoint whose policy does not fit the variant it is to drive (observation layout, action
+/// size, arm), and warn when it was trained as another variant or under another configuration.
+fn check_fit(
+    path: &Path,
+    ck: &crate::learn::checkpoint::Loaded,
+    exp: &Experiment,
+    v: &VariantSpec,
+    scenario: Option<&Path>,
+) -> Result<(), ReplayError> {
+    use crate::study::run::{arm_description, config_hash, observation_layout};
+    let (obs_dim, layout) = observation_layout(v);
+    let arm = arm_description(v);
+    let target = format!(
+        "variant `{}` of {}{}",
+        v.name,
+        exp.path.display(),
+        scenario
+            .map(|s| format!(" on scenario {}", s.display()))
+            .unwrap_or_default()
+    );
+    let side = &ck.sidecar;
+    let (trained_obs, trained_arm) = match &side.trained_for {
+        Some(t) => (t.observation.clone(), t.arm.clone()),
+        None => (
+            format!("{} values", side.obs_dim),
+            format!("{} joints", side.act_dim),
+        ),
+    };
+    let refuse = |what: &str, theirs: &str, ours: &str| {
+        Err(ReplayError::Bad(format!(
+            "checkpoint {} was trained for {what} {theirs}, but {target} gives {ours}; replay it with the experiment, variant and scenario it was trained with",
+            path.display()
+        )))
+    };
+    if ck.policy.obs_dim() != obs_dim {
+        return refuse("observations of", &trained_obs, &layout);
+    }
+    if ck.policy.act_dim() != v.scenario.n() {
+        return refuse(
+            "actions of",
+            &format!("{} values ({trained_arm})", ck.policy.act_dim()),
+            &format!("{} values ({arm})", v.scenario.n()),
+        );
+    }
+    let Some(t) = &side.trained_for else {
+        tracing::warn!(
+            "checkpoint {} does not record what it was trained for (written by an older termwise); only its sizes were checked",
+            path.display()
+        );
+        return Ok(());
+    };
+    if t.arm != arm {
+        return refuse("an arm with", &t.arm, &format!("an arm with {arm}"));
+    }
+    if t.observation != layout {
+        return refuse("observations of", &t.observation, &layout);
+    }
+    if t.variant != v.name || t.study != exp.study.name {
+        tracing::warn!(
+            "checkpoint {} was trained as variant `{}` of study `{}`; replaying it with the settings of {target}",
+            path.display(),
+            t.variant,
+            t.study
+        );
+    } else if scenario.is_none() && config_hash(exp, v, t.seed) != t.config_hash {
+        tracing::warn!(
+            "checkpoint {} was trained under another configuration of variant `{}` (config hash {}, the file now gives {})",
+            path.display(),
+            t.variant,
+            t.config_hash,
+            config_hash(exp, v, t.seed)
+        );
+    }
+    Ok(())
+}
+
 /// The whole `termwise replay` command. Returns a one-line summary.
 pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
     let exp = crate::study::experiment::load(&a.experiment)?;
@@ -309,7 +391,9 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
     let policy;
     let controller = match (&a.checkpoint, a.baseline) {
         (Some(p), false) => {
-            policy = crate::learn::checkpoint::load_policy(p)?;
+            let loaded = crate::learn::checkpoint::load(p)?;
+            check_fit(p, &loaded, &exp, &v, a.scenario.as_deref())?;
+            policy = loaded.policy;
             Controller::Policy(&policy)
         }
         (None, true) => Controller::Baseline,
@@ -336,6 +420,12 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
         }
     }
     if let Some(n) = a.episodes {
+        let most = crate::study::experiment::MAX_EVAL_EPISODES as usize;
+        if n == 0 || n > most {
+            return Err(ReplayError::Bad(format!(
+                "--episodes must be in 1..={most}, got {n}"
+            )));
+        }
         let mut csv = String::from(EPISODE_HEADER);
         csv.push('\n');
         let mut eps = Vec::new();

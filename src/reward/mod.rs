@@ -21,7 +21,7 @@ mod track;
 
 pub use composer::Composer;
 pub use registry::{describe_terms, registry, ParamInfo, ParamKind, ParamValue, Params, TermInfo};
-pub use spec::{RewardSpec, TermSetting};
+pub use spec::{RewardSpec, TermSetting, MAX_MAGNITUDE};
 pub use track::{PathPoint, PathTrack};
 
 use crate::sim::StepReport;

@@ -5,6 +5,10 @@
 use super::registry::{self, ParamKind, ParamValue, Params, TermInfo};
 use crate::config::ConfigError;
 
+/// Largest magnitude of a reward weight or numeric reward parameter: larger values only overflow the
+/// learner's f32 arithmetic (rewards, returns and losses) without changing what the study compares.
+pub const MAX_MAGNITUDE: f64 = 1e6;
+
 /// One term as configured (present in the table).
 #[derive(Clone, Debug, PartialEq)]
 pub struct TermSetting {
@@ -198,7 +202,16 @@ fn number(v: &toml::Value, path: &str, origin: &str, src: &str) -> Result<f64, C
             ))
         }
     };
-    crate::config::finite(origin, src, path, x)
+    let x = crate::config::finite(origin, src, path, x)?;
+    if x.abs() > MAX_MAGNITUDE {
+        return Err(ConfigError::at(
+            origin,
+            src,
+            path,
+            format!("must be within +-{MAX_MAGNITUDE:e}, got {x:e}"),
+        ));
+    }
+    Ok(x)
 }
 
 fn quoted(items: &[&str]) -> String {

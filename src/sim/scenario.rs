@@ -201,6 +201,58 @@ struct RawRandom {
     region_max: Option<[f64; 2]>,
 }
 
+// ---------- bounds ----------
+
+/// Largest physics step `physics.dt`, s.
+pub const MAX_DT: f64 = 0.1;
+/// Longest link (`arm.link[i].length`), m.
+pub const MAX_LINK_LENGTH: f64 = 100.0;
+/// Most physics steps per control step (`physics.substeps`).
+pub const MAX_SUBSTEPS: i64 = 1_000;
+/// Most control steps per episode (`physics.horizon`).
+pub const MAX_HORIZON: i64 = 1_000_000;
+/// Most physics steps per episode (`physics.horizon * physics.substeps`).
+pub const MAX_EPISODE_PHYSICS_STEPS: i64 = 10_000_000;
+/// Most obstacles (`[[obstacle]]` tables, and `random.obstacle_count` max).
+pub const MAX_OBSTACLES: usize = 100;
+/// Most entries of `events.goal_jump_times`.
+pub const MAX_GOAL_JUMP_TIMES: usize = 1_000;
+/// Largest `events.goal_jump_rate`, jumps per second (every jump replans the reference path).
+pub const MAX_GOAL_JUMP_RATE: f64 = 10.0;
+
+/// Why `goal` (with a goal region of radius `tolerance`) cannot be a goal of `arm` in the workspace
+/// [wmin, wmax], if it cannot: outside the workspace, or a goal region that misses the annulus the effector
+/// reaches (outer radius the sum of the link lengths, inner radius the longest link minus the others; joint
+/// limits and obstacles are the planner's business).
+pub fn check_goal(
+    arm: &Arm,
+    goal: [f64; 2],
+    tolerance: f64,
+    wmin: [f64; 2],
+    wmax: [f64; 2],
+) -> Result<(), String> {
+    if (0..2).any(|k| goal[k] < wmin[k] || goal[k] > wmax[k]) {
+        return Err(format!(
+            "{goal:?} lies outside the workspace {wmin:?}..{wmax:?}"
+        ));
+    }
+    let r = super::geometry::dist(goal, [0.0, 0.0]);
+    let reach = arm.reach();
+    let longest = arm.links.iter().map(|l| l.length).fold(0.0, f64::max);
+    let inner = (2.0 * longest - reach).max(0.0);
+    if r > reach + tolerance {
+        return Err(format!(
+            "{goal:?} is out of reach: {r:.4} m from the base, the arm reaches {reach:.4} m (goal tolerance {tolerance} m)"
+        ));
+    }
+    if r < inner - tolerance {
+        return Err(format!(
+            "{goal:?} is out of reach: {r:.4} m from the base, the arm cannot fold closer than {inner:.4} m (goal tolerance {tolerance} m)"
+        ));
+    }
+    Ok(())
+}
+
 // ---------- validated types ----------
 
 /// Obstacle motion during an episode.
@@ -325,6 +377,15 @@ impl Scenario {
         for (i, l) in raw.arm.link.iter().enumerate() {
             let p = |k: &str| format!("arm.link[{i}].{k}");
             let length = positive(origin, src, &p("length"), l.length)?;
+            if length > MAX_LINK_LENGTH {
+                return Err(err(
+                    &p("length"),
+                    format!(
+                        "must be at most {MAX_LINK_LENGTH} m, got {}",
+                        crate::config::num(length)
+                    ),
+                ));
+            }
             let mass = positive(origin, src, &p("mass"), l.mass)?;
             let com = match l.com {
                 Some(c) => {
@@ -407,16 +468,38 @@ impl Scenario {
             }
         }
         let dt = positive(origin, src, "physics.dt", raw.physics.dt)?;
-        if raw.physics.substeps < 1 {
+        if dt > MAX_DT {
             return Err(err(
-                "physics.substeps",
-                format!("must be an integer >= 1, got {}", raw.physics.substeps),
+                "physics.dt",
+                format!("must be at most {MAX_DT} s, got {}", crate::config::num(dt)),
             ));
         }
-        if raw.physics.horizon < 1 {
+        if !(1..=MAX_SUBSTEPS).contains(&raw.physics.substeps) {
+            return Err(err(
+                "physics.substeps",
+                format!(
+                    "must be an integer in 1..={MAX_SUBSTEPS}, got {}",
+                    raw.physics.substeps
+                ),
+            ));
+        }
+        if !(1..=MAX_HORIZON).contains(&raw.physics.horizon) {
             return Err(err(
                 "physics.horizon",
-                format!("must be an integer >= 1, got {}", raw.physics.horizon),
+                format!(
+                    "must be an integer in 1..={MAX_HORIZON} control steps, got {}",
+                    raw.physics.horizon
+                ),
+            ));
+        }
+        let physics_steps = raw.physics.horizon * raw.physics.substeps;
+        if physics_steps > MAX_EPISODE_PHYSICS_STEPS {
+            return Err(err(
+                "physics.horizon",
+                format!(
+                    "horizon x substeps = {physics_steps} physics steps per episode; at most \
+                     {MAX_EPISODE_PHYSICS_STEPS} are allowed"
+                ),
             ));
         }
         let reach = arm.reach();
@@ -465,6 +548,17 @@ impl Scenario {
             finite(origin, src, "goal.position", raw.goal.position[k])?;
         }
         let goal_tolerance = positive(origin, src, "goal.tolerance", raw.goal.tolerance)?;
+        check_goal(&arm, raw.goal.position, goal_tolerance, wmin, wmax)
+            .map_err(|m| err("goal.position", m))?;
+        if raw.obstacle.len() > MAX_OBSTACLES {
+            return Err(err(
+                "obstacle",
+                format!(
+                    "{} [[obstacle]] tables; at most {MAX_OBSTACLES} are allowed",
+                    raw.obstacle.len()
+                ),
+            ));
+        }
         let mut obstacles = Vec::new();
         for (i, o) in raw.obstacle.iter().enumerate() {
             let p = |k: &str| format!("obstacle[{i}].{k}");
@@ -542,6 +636,27 @@ impl Scenario {
             };
             obstacles.push(Obstacle { shape, motion });
         }
+        if let Some(i) = obstacles
+            .iter()
+            .position(|o| o.shape.point_distance(raw.goal.position) < 0.0)
+        {
+            return Err(err(
+                "goal.position",
+                format!(
+                    "{:?} lies inside obstacle[{i}] at t = 0; move the goal or the obstacle",
+                    raw.goal.position
+                ),
+            ));
+        }
+        if raw.events.goal_jump_times.len() > MAX_GOAL_JUMP_TIMES {
+            return Err(err(
+                "events.goal_jump_times",
+                format!(
+                    "{} times; at most {MAX_GOAL_JUMP_TIMES} are allowed",
+                    raw.events.goal_jump_times.len()
+                ),
+            ));
+        }
         for t in &raw.events.goal_jump_times {
             if !(t.is_finite() && *t > 0.0) {
                 return Err(err(
@@ -556,10 +671,13 @@ impl Scenario {
             "events.goal_jump_rate",
             raw.events.goal_jump_rate,
         )?;
-        if rate < 0.0 {
+        if !(0.0..=MAX_GOAL_JUMP_RATE).contains(&rate) {
             return Err(err(
                 "events.goal_jump_rate",
-                format!("must be >= 0 jumps per second, got {rate}"),
+                format!(
+                    "must be in [0, {MAX_GOAL_JUMP_RATE}] jumps per second, got {}",
+                    crate::config::num(rate)
+                ),
             ));
         }
         let replan_margin = positive(
@@ -571,11 +689,14 @@ impl Scenario {
         let random = match raw.random {
             None => None,
             Some(r) => {
-                if r.obstacle_count[0] < 0 || r.obstacle_count[0] > r.obstacle_count[1] {
+                if r.obstacle_count[0] < 0
+                    || r.obstacle_count[0] > r.obstacle_count[1]
+                    || r.obstacle_count[1] > MAX_OBSTACLES as i64
+                {
                     return Err(err(
                         "random.obstacle_count",
                         format!(
-                            "needs [min, max] with 0 <= min <= max, got {:?}",
+                            "needs [min, max] with 0 <= min <= max <= {MAX_OBSTACLES}, got {:?}",
                             r.obstacle_count
                         ),
                     ));

@@ -21,6 +21,9 @@ pub enum SimulateError {
         line: usize,
         message: String,
     },
+    /// The state turned non-finite (NaN or infinite) under the inputs; nothing is written.
+    #[error("{file}: the arm's state became non-finite at control step {step} (t = {t} s, input row {step}); the inputs drive the arm beyond what the simulation can represent: lower them, or set tau_max / acc_max in the scenario")]
+    NonFinite { file: String, step: usize, t: f64 },
     /// Reading or writing failed.
     #[error("{file}: {source}")]
     Io {
@@ -95,6 +98,16 @@ pub fn parse_inputs(text: &str, n: usize, file: &str) -> Result<Vec<Vec<f64>>, S
 /// Run `inputs` from the scenario's start state (each row held for one control step). Returns the CSV text:
 /// header `t,q1..qN,dq1..dqN,ee_x,ee_y,energy,min_clearance`, a row at t = 0, then one after every control step.
 pub fn simulate_csv(sc: Arc<Scenario>, inputs: &[Vec<f64>]) -> String {
+    simulate_rows(sc, inputs, false).unwrap_or_else(|_| unreachable!("no check asked"))
+}
+
+/// [`simulate_csv`], stopping with the (1-based) control step and its time at the first step whose state is
+/// not finite when `check_finite` is set.
+fn simulate_rows(
+    sc: Arc<Scenario>,
+    inputs: &[Vec<f64>],
+    check_finite: bool,
+) -> Result<String, (usize, f64)> {
     let n = sc.n();
     let mut env = ArmEnv::new(sc.clone());
     let mut start = ArmState::at_rest(&sc.start_q);
@@ -125,9 +138,12 @@ pub fn simulate_csv(sc: Arc<Scenario>, inputs: &[Vec<f64>]) -> String {
         let r = env.step(u);
         // Time from the step count, so long runs do not accumulate rounding in t.
         let t = (k + 1) as f64 * sc.control_dt();
+        if check_finite && !r.q[..n].iter().chain(&r.dq[..n]).all(|v| v.is_finite()) {
+            return Err((k + 1, t));
+        }
         row(t, &r.q, &r.dq, r.ee, r.min_clearance);
     }
-    out
+    Ok(out)
 }
 
 /// The whole `simulate` command: read the scenario and inputs, simulate, write the states atomically.
@@ -139,7 +155,11 @@ pub fn run_simulate(scenario: &Path, inputs: &Path, out: &Path) -> Result<usize,
         source,
     })?;
     let rows = parse_inputs(&text, sc.n(), &file)?;
-    let csv = simulate_csv(sc, &rows);
+    let csv = simulate_rows(sc, &rows, true).map_err(|(step, t)| SimulateError::NonFinite {
+        file,
+        step,
+        t,
+    })?;
     crate::fsio::write_atomic(out, csv.as_bytes()).map_err(|source| SimulateError::Io {
         file: out.display().to_string(),
         source,

@@ -160,6 +160,20 @@ impl Experiment {
     }
 }
 
+/// Most seeds per variant (`study.seeds`).
+pub const MAX_SEEDS: i64 = 1_000;
+/// Most environment steps per run (`study.budget`): 10^10, days of CPU time per run.
+pub const MAX_BUDGET: i64 = 10_000_000_000;
+/// Most evaluations per run (budget / eval_every + 1) and largest `study.final_window`.
+pub const MAX_EVALUATIONS: i64 = 10_000;
+/// Most evaluation episodes per evaluation (`study.eval_episodes`).
+pub const MAX_EVAL_EPISODES: i64 = 10_000;
+/// Most variants, explicit and generated (a grid's combinations included).
+pub const MAX_VARIANTS: usize = 1_000;
+
+/// Most runs in a study (learned variants x seeds, plus one per baseline variant).
+pub const MAX_RUNS: i64 = 10_000;
+
 /// Sections of the base a variant may override.
 const VARIANT_SECTIONS: &[&str] = &[
     "scenario",
@@ -316,17 +330,17 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
             ),
         ));
     }
-    if st.seeds < 1 {
+    if st.seeds < 1 || st.seeds > MAX_SEEDS {
         return Err(err(
             "study.seeds",
-            format!("needs at least 1 seed, got {}", st.seeds),
+            format!("needs 1 to {MAX_SEEDS} seeds, got {}", st.seeds),
         ));
     }
-    if st.budget < 1 {
+    if st.budget < 1 || st.budget > MAX_BUDGET {
         return Err(err(
             "study.budget",
             format!(
-                "must be a positive number of environment steps, got {}",
+                "must be a number of environment steps in 1..={MAX_BUDGET}, got {}",
                 st.budget
             ),
         ));
@@ -338,11 +352,24 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
                 format!("must be in 1..=budget ({}), got {e}", st.budget),
             ));
         }
+        if st.budget / e >= MAX_EVALUATIONS {
+            return Err(err(
+                "study.eval_every",
+                format!(
+                    "{e} steps gives {} evaluations per run; at most {MAX_EVALUATIONS} are allowed \
+                     (eval_every >= budget / {MAX_EVALUATIONS})",
+                    st.budget / e + 1
+                ),
+            ));
+        }
     }
-    if st.eval_episodes < 1 {
+    if st.eval_episodes < 1 || st.eval_episodes > MAX_EVAL_EPISODES {
         return Err(err(
             "study.eval_episodes",
-            format!("must be >= 1, got {}", st.eval_episodes),
+            format!(
+                "must be in 1..={MAX_EVAL_EPISODES}, got {}",
+                st.eval_episodes
+            ),
         ));
     }
     if !(0.0..=1.0).contains(&st.success_threshold) {
@@ -351,10 +378,13 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
             format!("must be in [0, 1], got {}", st.success_threshold),
         ));
     }
-    if st.final_window < 1 {
+    if st.final_window < 1 || st.final_window > MAX_EVALUATIONS {
         return Err(err(
             "study.final_window",
-            format!("must be >= 1, got {}", st.final_window),
+            format!(
+                "must be in 1..={MAX_EVALUATIONS} evaluations, got {}",
+                st.final_window
+            ),
         ));
     }
 
@@ -469,7 +499,16 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
                     ));
                 }
             }
-            let total: usize = keys.iter().map(|k| g.grid[*k].len()).product();
+            let total = keys
+                .iter()
+                .try_fold(1usize, |acc, k| acc.checked_mul(g.grid[*k].len()))
+                .filter(|t| *t <= MAX_VARIANTS)
+                .ok_or_else(|| {
+                    err(
+                        "generate.grid",
+                        format!("makes more than {MAX_VARIANTS} variants (the product of the list lengths)"),
+                    )
+                })?;
             for combo in 0..total {
                 // Decode `combo` in mixed radix, the last key varying fastest.
                 let mut rest = combo;
@@ -502,6 +541,15 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
         overrides.push(("base".into(), Table::new(), "base".into(), None));
     }
 
+    if overrides.len() > MAX_VARIANTS {
+        return Err(err(
+            "variant",
+            format!(
+                "{} variants (explicit and generated); at most {MAX_VARIANTS} are allowed",
+                overrides.len()
+            ),
+        ));
+    }
     let mut variants: Vec<VariantSpec> = Vec::new();
     for (name, over, where_, grid) in overrides {
         if !safe_name(&name) {
@@ -543,6 +591,23 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
                 format!("no variant named `{r}`; variants: {}", names.join(", ")),
             ));
         }
+    }
+    let runs: i64 = variants
+        .iter()
+        .map(|v| match v.kind {
+            VariantKind::Baseline => 1,
+            VariantKind::Learned => st.seeds,
+        })
+        .sum();
+    if runs > MAX_RUNS {
+        return Err(err(
+            "study.seeds",
+            format!(
+                "{} variants and {} seeds make {runs} runs; at most {MAX_RUNS} are allowed",
+                variants.len(),
+                st.seeds
+            ),
+        ));
     }
     for v in &variants {
         let rollout = (v.learner.num_envs * v.learner.rollout_steps) as i64;

@@ -97,8 +97,20 @@ fn io(path: &Path) -> impl FnOnce(std::io::Error) -> StudyError + '_ {
 
 /// Read a run's run.json, if present and readable.
 pub fn read_run_json(dir: &Path) -> Option<RunRecord> {
-    let text = std::fs::read_to_string(dir.join("run.json")).ok()?;
-    serde_json::from_str(&text).ok()
+    read_run_json_checked(dir).ok().flatten()
+}
+
+/// Read a run's run.json: `Ok(None)` when there is none, `Err` (saying why) when it cannot be read or parsed.
+pub fn read_run_json_checked(dir: &Path) -> Result<Option<RunRecord>, String> {
+    let p = dir.join("run.json");
+    let text = match std::fs::read_to_string(&p) {
+        Ok(t) => t,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+        Err(e) => return Err(format!("{}: {e}", p.display())),
+    };
+    serde_json::from_str(&text)
+        .map(Some)
+        .map_err(|e| format!("{}: {e}", p.display()))
 }
 
 pub fn write_run_json(dir: &Path, r: &RunRecord) -> Result<(), StudyError> {

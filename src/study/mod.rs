@@ -3,6 +3,7 @@
 
 pub mod experiment;
 pub mod layout;
+pub mod lock;
 pub mod run;
 pub mod slurm;
 pub mod status;
@@ -68,6 +69,41 @@ pub struct StudyOutcome {
     pub done: usize,
     pub diverged: usize,
     pub interrupted: usize,
+    /// Runs left to another live process holding their lock: (variant, seed, owner).
+    pub busy: Vec<(String, u64, lock::LockOwner)>,
+    /// Runs another process finished after this one planned its work (counted in `skipped` too).
+    pub finished_elsewhere: usize,
+}
+
+/// Whether a run's folder already holds a finished run of this config; a different config hash is an error.
+fn finished(r: &RunSpec, exp: &Experiment) -> Result<bool, StudyError> {
+    let rec = match layout::read_run_json_checked(&r.dir) {
+        Ok(rec) => rec,
+        Err(why) => {
+            // An unreadable run.json (e.g. a disk filled up) is restarted like an interrupted run.
+            tracing::warn!(
+                "restarting {}: unreadable run record: {why}",
+                r.dir.display()
+            );
+            None
+        }
+    };
+    match rec {
+        Some(rec) if rec.config_hash != r.config_hash => Err(StudyError::ChangedConfig {
+            dir: r
+                .dir
+                .parent()
+                .and_then(|p| p.parent())
+                .unwrap_or(&r.dir)
+                .to_path_buf(),
+            variant: exp.variants[r.variant].name.clone(),
+            seed: r.seed,
+            found: rec.config_hash,
+            expected: r.config_hash.clone(),
+        }),
+        Some(rec) => Ok(matches!(rec.status, RunStatus::Done | RunStatus::Diverged)),
+        None => Ok(false),
+    }
 }
 
 /// Decide which runs need running: finished runs with the same config hash are skipped; a different hash is an error.
@@ -75,28 +111,43 @@ fn pending(runs: &[RunSpec], exp: &Experiment) -> Result<(Vec<RunSpec>, usize), 
     let mut todo = Vec::new();
     let mut skipped = 0;
     for r in runs {
-        match layout::read_run_json(&r.dir) {
-            Some(rec) if rec.config_hash != r.config_hash => {
-                return Err(StudyError::ChangedConfig {
-                    dir: r
-                        .dir
-                        .parent()
-                        .and_then(|p| p.parent())
-                        .unwrap_or(&r.dir)
-                        .to_path_buf(),
-                    variant: exp.variants[r.variant].name.clone(),
-                    seed: r.seed,
-                    found: rec.config_hash,
-                    expected: r.config_hash.clone(),
-                })
-            }
-            Some(rec) if matches!(rec.status, RunStatus::Done | RunStatus::Diverged) => {
-                skipped += 1
-            }
-            _ => todo.push(r.clone()),
+        if finished(r, exp)? {
+            skipped += 1
+        } else {
+            todo.push(r.clone())
         }
     }
     Ok((todo, skipped))
+}
+
+/// What a worker did with one planned run.
+enum Claim {
+    Ran(RunStatus),
+    Busy(lock::LockOwner),
+    FinishedElsewhere,
+}
+
+/// Run `r` under its lock: left alone when another live process holds it or finished it meanwhile; otherwise
+/// the leftovers of a killed attempt (temporary files) are removed and the run executes.
+fn claim_and_execute(
+    exp: &Experiment,
+    r: &RunSpec,
+    stop: &AtomicBool,
+    on_progress: &mut dyn FnMut(&run::RunProgress),
+) -> Result<Claim, StudyError> {
+    let io = |source| StudyError::Io {
+        path: r.dir.clone(),
+        source,
+    };
+    let _lock = match lock::try_lock(&r.dir, status::DEFAULT_STALE_AFTER_S).map_err(io)? {
+        lock::Acquire::Acquired(l) => l,
+        lock::Acquire::Busy(owner) => return Ok(Claim::Busy(owner)),
+    };
+    if finished(r, exp)? {
+        return Ok(Claim::FinishedElsewhere);
+    }
+    crate::fsio::remove_stale_temps(&r.dir, true).map_err(io)?;
+    run::execute(exp, r, stop, on_progress).map(Claim::Ran)
 }
 
 /// Run a study (or one cell of it) with `jobs` workers; `stop` is raised by Ctrl-C.
@@ -120,6 +171,12 @@ pub fn run_study(
         path: out.to_path_buf(),
         source,
     })?;
+    if let Err(e) = crate::fsio::remove_stale_temps(out, false) {
+        tracing::warn!(
+            "{}: cannot remove leftover temporary files: {e}",
+            out.display()
+        );
+    }
     layout::write_study_json(out, exp)?;
     let mut outcome = StudyOutcome {
         out: out.to_path_buf(),
@@ -200,8 +257,8 @@ pub fn run_study(
                         );
                     }
                 };
-                match run::execute(exp, r, stop, &mut on_progress) {
-                    Ok(st) => results.lock().expect("lock").push(st),
+                match claim_and_execute(exp, r, stop, &mut on_progress) {
+                    Ok(c) => results.lock().expect("lock").push((r.clone(), c)),
                     Err(e) => {
                         *error.lock().expect("lock") = Some(e);
                     }
@@ -214,7 +271,20 @@ pub fn run_study(
     if let Some(e) = error.into_inner().expect("lock") {
         return Err(e);
     }
-    for st in results.into_inner().expect("lock") {
+    for (r, c) in results.into_inner().expect("lock") {
+        let st = match c {
+            Claim::Ran(st) => st,
+            Claim::Busy(owner) => {
+                let name = exp.variants[r.variant].name.clone();
+                outcome.busy.push((name, r.seed, owner));
+                continue;
+            }
+            Claim::FinishedElsewhere => {
+                outcome.skipped += 1;
+                outcome.finished_elsewhere += 1;
+                continue;
+            }
+        };
         outcome.ran += 1;
         match st {
             RunStatus::Done => outcome.done += 1,
@@ -283,42 +353,97 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
         .iter()
         .filter(|r| exp.variants[r.variant].kind == VariantKind::Learned)
         .count() as u64;
-    let total = learned * exp.study.budget as u64;
+    let total = learned.saturating_mul(exp.study.budget as u64);
     let evals = exp.study.budget as u64 / exp.eval_every() + 1;
     let _ = writeln!(
         s,
         "environment steps: {} per run, {} in total; {} evaluations of {} episodes per run",
         exp.study.budget, total, evals, exp.study.eval_episodes
     );
+    let _ = writeln!(
+        s,
+        "note: studies draw a random collision-free start and a reachable goal for every episode; the scenario's \
+         start.q and goal.position are used by `plan`, `simulate` and as the fallback of a failed draw"
+    );
     if calibrate {
-        for v in &exp.variants {
-            let (redraws, unsolved) = run::eval_redraws(exp, v);
-            let _ = writeln!(
-                s,
-                "evaluation episodes of `{}`: {} draws rejected for lack of a collision-free path{}",
-                v.name,
-                redraws,
-                if unsolved > 0 {
-                    format!(", {unsolved} still unsolved after {} draws", task::MAX_REDRAWS)
-                } else {
-                    String::new()
-                }
-            );
-        }
-        let (train_sps, eval_s) = calibration(exp)?;
-        let per_run = exp.study.budget as f64 / train_sps + evals as f64 * eval_s;
-        let workers = jobs.max(1).min(runs.len().max(1)) as f64;
-        let wall = per_run * runs.len() as f64 / workers;
-        let _ = writeln!(
-            s,
-            "estimate on this machine: {:.0} training steps/s, {:.2} s per evaluation -> about {} with {} worker(s)",
-            train_sps,
-            eval_s,
-            human_duration(wall),
-            workers as usize
-        );
+        let _ = writeln!(s, "{}", redraws_text(exp));
+        let workers = jobs.max(1).min(runs.len().max(1));
+        let _ = writeln!(s, "{}", estimate_line(exp, evals, runs.len(), workers));
     }
     Ok(s)
+}
+
+/// Longest time `check` spends calibrating, s: the estimate is bounded in time whatever the input.
+pub const CALIBRATION_LIMIT_S: u64 = 20;
+
+/// The wall-time estimate line of `check`. Calibration runs on its own thread and is abandoned after
+/// [`CALIBRATION_LIMIT_S`]; a calibration that fails or takes too long gives a line saying so, never an error.
+fn estimate_line(exp: &Experiment, evals: u64, runs: usize, workers: usize) -> String {
+    let (tx, rx) = std::sync::mpsc::channel();
+    let copy = exp.clone();
+    let spawned = std::thread::Builder::new()
+        .name("calibration".into())
+        .spawn(move || {
+            let _ = tx.send(calibration(&copy));
+        });
+    if let Err(e) = spawned {
+        return format!("estimate unavailable: cannot start the calibration thread: {e}");
+    }
+    match rx.recv_timeout(std::time::Duration::from_secs(CALIBRATION_LIMIT_S)) {
+        Ok(Ok((train_sps, eval_s))) => {
+            let per_run = exp.study.budget as f64 / train_sps + evals as f64 * eval_s;
+            let wall = per_run * runs as f64 / workers as f64;
+            format!(
+                "estimate on this machine: {:.0} training steps/s, {:.2} s per evaluation -> about {} with {} worker(s)",
+                train_sps,
+                eval_s,
+                human_duration(wall),
+                workers
+            )
+        }
+        Ok(Err(e)) => format!("estimate unavailable: the calibration run failed: {e}"),
+        Err(std::sync::mpsc::RecvTimeoutError::Timeout) => format!(
+            "estimate unavailable: one PPO iteration and 4 evaluation episodes of the first learned variant took \
+             more than {CALIBRATION_LIMIT_S} s, so each run takes far longer (budget {} steps, {evals} evaluations)",
+            exp.study.budget
+        ),
+        Err(std::sync::mpsc::RecvTimeoutError::Disconnected) => {
+            "estimate unavailable: the calibration run stopped unexpectedly".into()
+        }
+    }
+}
+
+/// Per variant, how many evaluation draws were rejected for lack of a collision-free path (bounded in time like
+/// the calibration: after [`CALIBRATION_LIMIT_S`] it says so instead).
+fn redraws_text(exp: &Experiment) -> String {
+    let (tx, rx) = std::sync::mpsc::channel();
+    let copy = exp.clone();
+    let spawned = std::thread::Builder::new()
+        .name("redraws".into())
+        .spawn(move || {
+            let mut lines = Vec::new();
+            for v in &copy.variants {
+                let (redraws, unsolved) = run::eval_redraws(&copy, v);
+                lines.push(format!(
+                    "evaluation episodes of `{}`: {} draws rejected for lack of a collision-free path{}",
+                    v.name,
+                    redraws,
+                    if unsolved > 0 {
+                        format!(", {unsolved} still unsolved after {} draws", task::MAX_REDRAWS)
+                    } else {
+                        String::new()
+                    }
+                ));
+            }
+            let _ = tx.send(lines.join("\n"));
+        });
+    if let Err(e) = spawned {
+        return format!("evaluation redraws unknown: cannot start a thread: {e}");
+    }
+    rx.recv_timeout(std::time::Duration::from_secs(CALIBRATION_LIMIT_S))
+        .unwrap_or_else(|_| {
+            format!("evaluation redraws unknown: drawing the evaluation episodes took more than {CALIBRATION_LIMIT_S} s")
+        })
 }
 
 fn human_duration(s: f64) -> String {
@@ -374,6 +499,22 @@ pub fn cli_run(
         o.skipped,
         out.display()
     );
+    if !o.busy.is_empty() {
+        let list: Vec<String> = o
+            .busy
+            .iter()
+            .map(|(v, s, owner)| format!("{v} seed {s} ({owner})"))
+            .collect();
+        text.push_str(&format!(
+            "\ntermwise: {} runs left to the process holding their lock: {}",
+            o.busy.len(),
+            list.join(", ")
+        ));
+    }
+    if stop.load(std::sync::atomic::Ordering::SeqCst) {
+        text.push_str("\ntermwise: interrupted; run the same command again to finish the study");
+        return Ok(text);
+    }
     if report && cell.is_none() {
         let files = crate::chart::write_report(&out, &crate::chart::ReportOptions::default())
             .map_err(|e| StudyError::Run(format!("drawing the report: {e}")))?;

@@ -6,6 +6,7 @@ use super::experiment::{fnv1a_hex, Experiment, VariantKind, VariantSpec};
 use super::layout::{self, RunRecord, RunStatus};
 use super::task::{begin_eval, run_episode, Episode, EvalSummary, RunShared, TaskEnv};
 use super::StudyError;
+use crate::learn::checkpoint::TrainedFor;
 use crate::learn::{Environment, LearnError, NoObserver, Policy, Trainer};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -73,6 +74,60 @@ pub fn run_seed(exp: &Experiment, v: &VariantSpec, seed: u64) -> u64 {
         &seed.to_le_bytes(),
     ]);
     u64::from_str_radix(&h, 16).expect("16 hex digits")
+}
+
+/// The observation a variant's policy sees: its length and a description of its layout.
+pub fn observation_layout(v: &VariantSpec) -> (usize, String) {
+    let ep = Episode::new(
+        v.scenario.clone(),
+        &v.reward,
+        &v.plan,
+        v.learner.gamma,
+        v.observation.waypoints,
+    );
+    let (sim, all) = (ep.sim.obs_dim(), ep.obs_dim());
+    let path = if v.observation.waypoints {
+        format!(" + {} waypoints x 2", v.plan.waypoints)
+    } else {
+        " (observation.waypoints = false)".into()
+    };
+    let n = v.scenario.n();
+    (
+        all,
+        format!("{all} values: {n}-joint arm, goal and obstacles ({sim}){path}"),
+    )
+}
+
+/// The arm a variant's policy drives, as recorded in checkpoints.
+pub fn arm_description(v: &VariantSpec) -> String {
+    let sc = &v.scenario;
+    let lengths: Vec<String> = sc
+        .arm
+        .links
+        .iter()
+        .map(|l| format!("{}", l.length))
+        .collect();
+    let control = match sc.control {
+        crate::sim::ControlMode::Torque => "torque",
+        crate::sim::ControlMode::Acceleration => "acceleration",
+    };
+    format!(
+        "{} joints, link lengths [{}] m, {control} control",
+        sc.n(),
+        lengths.join(", ")
+    )
+}
+
+/// What a run's checkpoints are trained for.
+pub fn trained_for(exp: &Experiment, v: &VariantSpec, spec: &RunSpec) -> TrainedFor {
+    TrainedFor {
+        study: exp.study.name.clone(),
+        variant: v.name.clone(),
+        seed: spec.seed,
+        config_hash: spec.config_hash.clone(),
+        arm: arm_description(v),
+        observation: observation_layout(v).1,
+    }
 }
 
 /// Progress of a run, for the display.
@@ -230,6 +285,7 @@ pub fn execute(
     let best = spec.dir.join("policy-best.safetensors");
     let budget = exp.study.budget as u64;
     let every = exp.eval_every();
+    let meta = trained_for(exp, v, spec);
     let mut best_success = -1.0;
     let level = |sh: &Arc<Mutex<RunShared>>| sh.lock().expect("run state").curriculum.level();
     let mut evaluate = |trainer: &Trainer,
@@ -247,12 +303,12 @@ pub fn execute(
         rows.push((trainer.env_steps(), s, lv));
         save_rows(rows)?;
         trainer
-            .save_checkpoint(&ckpt)
+            .save_checkpoint_for(&ckpt, Some(&meta))
             .map_err(|e| StudyError::Run(e.to_string()))?;
         if improved {
             *best_success = rows.last().expect("just pushed").1.success_rate;
             trainer
-                .save_checkpoint(&best)
+                .save_checkpoint_for(&best, Some(&meta))
                 .map_err(|e| StudyError::Run(e.to_string()))?;
         }
         Ok(())

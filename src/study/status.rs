@@ -1,7 +1,8 @@
 //! `termwise status`: how far a study has got, read from its results folder alone — runs done, running,
 //! stale (a `running` run whose heartbeat stopped: its process died), diverged, interrupted or missing.
 
-use super::layout::{read_run_json, RunStatus, StudyRecord};
+use super::layout::{read_run_json, read_run_json_checked, RunStatus, StudyRecord};
+use super::lock::{self, Holder};
 use super::StudyError;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -19,8 +20,10 @@ pub enum CellState {
     Stale,
     Diverged,
     Interrupted,
-    /// Planned in study.json but without a (readable) run.json.
+    /// Planned in study.json but without a run.json.
     Missing,
+    /// A run.json that cannot be read or parsed (the run restarts when run again).
+    Unreadable,
 }
 
 impl CellState {
@@ -32,13 +35,14 @@ impl CellState {
             CellState::Diverged => "diverged",
             CellState::Interrupted => "interrupted",
             CellState::Missing => "missing",
+            CellState::Unreadable => "unreadable",
         }
     }
     /// True when running the cell again is needed to finish the study.
     pub fn needs_rerun(self) -> bool {
         matches!(
             self,
-            CellState::Stale | CellState::Interrupted | CellState::Missing
+            CellState::Stale | CellState::Interrupted | CellState::Missing | CellState::Unreadable
         )
     }
 }
@@ -55,6 +59,8 @@ pub struct CellStatus {
     pub env_steps: u64,
     /// Seconds since the last heartbeat (`None` when missing).
     pub heartbeat_age_s: Option<u64>,
+    /// Why the state is what it is, when that needs saying (a dead lock owner, an unreadable run.json).
+    pub note: Option<String>,
 }
 
 /// The state of every planned run of a study.
@@ -116,12 +122,37 @@ pub fn study_status(
             rec.seeds.clone()
         };
         for seed in seeds {
-            let run = read_run_json(&dir.join(&v.name).join(format!("seed-{seed}")));
-            let state = classify(
-                run.as_ref().map(|r| (r.status, r.heartbeat_unix)),
-                now_unix,
-                stale_after_s,
-            );
+            let run_dir = dir.join(&v.name).join(format!("seed-{seed}"));
+            let (run, mut state, mut note) = match read_run_json_checked(&run_dir) {
+                Ok(run) => {
+                    let state = classify(
+                        run.as_ref().map(|r| (r.status, r.heartbeat_unix)),
+                        now_unix,
+                        stale_after_s,
+                    );
+                    (run, state, None)
+                }
+                Err(why) => (None, CellState::Unreadable, Some(why)),
+            };
+            if state == CellState::Running {
+                // The run's lock says at once whether its process is alive (same host) or gone.
+                let dead = match lock::holder(&run_dir, now_unix, stale_after_s) {
+                    Holder::Live(_) => None,
+                    Holder::Stale(owner) => Some(format!("its lock holder, {owner}, is gone")),
+                    Holder::Free => Some("no process holds its lock".to_string()),
+                };
+                // The run may have finished between the two reads: look again before calling it stale.
+                let again = read_run_json(&run_dir);
+                if let (Some(why), Some(r)) = (dead, &again) {
+                    if r.status == RunStatus::Running {
+                        state = CellState::Stale;
+                        note = Some(why);
+                    } else {
+                        state =
+                            classify(Some((r.status, r.heartbeat_unix)), now_unix, stale_after_s);
+                    }
+                }
+            }
             cells.push(CellStatus {
                 cell: cells.len(),
                 variant: v.name.clone(),
@@ -129,6 +160,7 @@ pub fn study_status(
                 state,
                 env_steps: run.as_ref().map_or(0, |r| r.env_steps),
                 heartbeat_age_s: run.map(|r| now_unix.saturating_sub(r.heartbeat_unix)),
+                note,
             });
         }
     }
@@ -171,9 +203,11 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
         CellState::Diverged,
         CellState::Interrupted,
         CellState::Missing,
+        CellState::Unreadable,
     ];
     let counts: Vec<String> = states
         .iter()
+        .filter(|&&c| c != CellState::Unreadable || st.count(c) > 0)
         .map(|&c| format!("{} {}", st.count(c), c.as_str()))
         .collect();
     let _ = writeln!(
@@ -189,20 +223,26 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
             .heartbeat_age_s
             .map(|a| format!(", last heartbeat {a} s ago"))
             .unwrap_or_default();
+        let note = c
+            .note
+            .as_ref()
+            .map(|n| format!("; {n}"))
+            .unwrap_or_default();
         let _ = writeln!(
             s,
-            "  cell {:>3}: {} seed {}: {} ({} of {} steps{})",
+            "  cell {:>3}: {} seed {}: {} ({} of {} steps{}{})",
             c.cell,
             c.variant,
             c.seed,
             c.state.as_str(),
             c.env_steps,
             st.budget_steps,
-            age
+            age,
+            note
         );
     }
     if st.count(CellState::Stale) > 0 {
-        let _ = writeln!(s, "  (stale: `running` but no heartbeat for more than {stale_after_s} s, so its process has died)");
+        let _ = writeln!(s, "  (stale: `running` but its process has died: the lock holder's process id is gone on this host, or no heartbeat for more than {stale_after_s} s)");
     }
     let rerun = st.to_rerun();
     if !rerun.is_empty() {
