@@ -23,7 +23,7 @@ fn scenario(links: &[(f64, f64, f64)], control: &str, extra: &str) -> Arc<Scenar
     let zeros = vec!["0.0"; links.len()].join(", ");
     src += &format!(
         "[physics]\nintegrator = \"rk4\"\ndt = 0.001\nsubsteps = 10\nhorizon = 100000\n\
-         [workspace]\nmin = [-3.0, -3.0]\nmax = [3.0, 3.0]\n[start]\nq = [{zeros}]\n[goal]\nposition = [0.0, 0.9]\n{extra}"
+         [workspace]\nmin = [-3.0, -3.0]\nmax = [3.0, 3.0]\n[start]\nq = [{zeros}]\n[goal]\nposition = [0.0, 0.5]\n{extra}"
     );
     Arc::new(Scenario::from_toml_str(&src, "contact-test").unwrap())
 }

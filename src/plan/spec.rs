@@ -14,7 +14,9 @@ pub struct PlanSpec {
     /// Samples the planner draws (its iteration budget). Default 600.
     pub iterations: usize,
     /// Wall-clock budget for the search, ms. When hit, the search stops early: the result then depends on
-    /// machine speed (the only non-deterministic path) and `PlanReport::timed_out` is set. Default 50.
+    /// machine speed (the only non-deterministic path) and `PlanReport::timed_out` is set. Default 1000: a guard,
+    /// not a budget (600 iterations take a few ms); at 50 ms it bound on a busy 2-core machine (16 of 600
+    /// iterations seen), which made study results depend on the load.
     pub time_budget_ms: f64,
     /// Waypoints K in the reference path, evenly spaced along its length (first = start, last = goal).
     /// Default 5.
@@ -44,7 +46,7 @@ impl Default for PlanSpec {
         PlanSpec {
             planner: "bi-rrt-star".into(),
             iterations: 600,
-            time_budget_ms: 50.0,
+            time_budget_ms: 1000.0,
             waypoints: 5,
             step: 0.5,
             goal_bias: 0.05,
