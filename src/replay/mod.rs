@@ -218,6 +218,7 @@ pub fn write_gif(path: &Path, v: &VariantSpec, rec: &Recording) -> Result<(), Re
     let delay = ((v.scenario.control_dt() * stride as f64) * 1000.0)
         .round()
         .max(10.0) as u32;
+    crate::fonts::register();
     let tmp = crate::fsio::temp_sibling(path);
     {
         let root = BitMapBackend::gif(&tmp, (560, 600), delay)
@@ -244,6 +245,7 @@ pub fn write_gif(path: &Path, v: &VariantSpec, rec: &Recording) -> Result<(), Re
 /// Write a grid of 12 frames evenly spread over the episode as one PNG.
 pub fn write_filmstrip(path: &Path, v: &VariantSpec, rec: &Recording) -> Result<(), ReplayError> {
     let (cols, rows) = (4usize, 3usize);
+    crate::fonts::register();
     let tmp = crate::fsio::temp_sibling(path).with_extension("png");
     {
         let root =
