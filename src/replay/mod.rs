@@ -266,7 +266,8 @@ pub fn write_filmstrip(path: &Path, v: &VariantSpec, rec: &Recording) -> Result<
 }
 
 /// Header of the per-episode metrics CSV.
-pub const EPISODE_HEADER: &str = "episode,success,time_to_goal,return,collided,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks";
+/// `clean_success` = goal reached with no contact; `reached` = goal reached, contact allowed.
+pub const EPISODE_HEADER: &str = "episode,clean_success,time_to_goal,return,collided,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks,reached";
 
 /// Options of `termwise replay`.
 pub struct ReplayArgs {
@@ -302,6 +303,20 @@ fn pick_variant(exp: &Experiment, name: &Option<String>) -> Result<VariantSpec, 
     }
 }
 
+/// Refuse, before any rollout, an output file whose folder does not exist.
+fn check_output_folder(flag: &str, path: Option<&Path>) -> Result<(), ReplayError> {
+    let Some(path) = path else { return Ok(()) };
+    match path.parent().filter(|d| !d.as_os_str().is_empty()) {
+        Some(dir) if !dir.is_dir() => Err(ReplayError::Bad(format!(
+            "{flag} {}: folder {} does not exist (create it first, e.g. `mkdir -p {}`)",
+            path.display(),
+            dir.display(),
+            dir.display()
+        ))),
+        _ => Ok(()),
+    }
+}
+
 /// The whole `termwise replay` command. Returns a one-line summary.
 pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
     let exp = crate::study::experiment::load(&a.experiment)?;
@@ -322,16 +337,24 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
             ))
         }
     };
+    for (flag, path) in [
+        ("--out", &a.out),
+        ("--filmstrip", &a.filmstrip),
+        ("--metrics-out", &a.metrics_out),
+    ] {
+        check_output_folder(flag, path.as_deref())?;
+    }
     let seed = a.seed.unwrap_or(exp.study.eval_seed);
     let mut said = Vec::new();
     if let Some(out) = &a.out {
         let rec = record(&v, &controller, seed, 0);
         write_gif(out, &v, &rec)?;
         said.push(format!(
-            "{} ({} steps, success {})",
+            "{} ({} steps, clean success {}, contact {})",
             out.display(),
             rec.frames.len() - 1,
-            rec.metrics.success
+            rec.metrics.success,
+            rec.metrics.collided
         ));
         if let Some(fs) = &a.filmstrip {
             write_filmstrip(fs, &v, &rec)?;
@@ -346,7 +369,7 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
             let m = record(&v, &controller, seed, j).metrics;
             let _ = writeln!(
                 csv,
-                "{j},{},{},{},{},{},{},{},{},{},{},{},{}",
+                "{j},{},{},{},{},{},{},{},{},{},{},{},{},{}",
                 m.success as u8,
                 m.time_to_goal.unwrap_or(f64::NAN),
                 m.ret,
@@ -358,7 +381,8 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
                 m.min_clearance,
                 m.path_deviation,
                 m.replans,
-                m.fallbacks
+                m.fallbacks,
+                m.reached as u8
             );
             eps.push(m);
         }
@@ -372,9 +396,11 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
         })?;
         let s = crate::study::task::EvalSummary::from_episodes(&eps);
         said.push(format!(
-            "{} ({n} episodes, success rate {:.3}, mean return {:.3})",
+            "{} ({n} episodes, clean success rate {:.3}, reached rate {:.3}, collision rate {:.3}, mean return {:.3})",
             path.display(),
             s.success_rate,
+            s.reached_rate,
+            s.collision_rate,
             s.mean_return
         ));
     }
