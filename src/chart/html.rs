@@ -284,6 +284,30 @@ pub fn headline(s: &StudySummary) -> String {
         .map(|&i| format!("<b>{}</b>", esc(&s.variants[i].info.name)))
         .collect();
     let seeds = s.study.seeds.len();
+    let nobody_reached = s
+        .ranking()
+        .iter()
+        .all(|&i| s.variants[i].steps_to_threshold.reached == 0);
+    if nobody_reached {
+        let mut out = format!(
+            "No learned variant reached {thr:.0}% clean success within the budget ({} environment steps per run) in any seed, so none can be ranked on speed. By final clean success, {} lead{} with {}",
+            fmt_steps(s.study.budget_steps as f64),
+            join_names(&names),
+            if top.len() == 1 { "s" } else { "" },
+            est_num(&l.final_success.iqm)
+        );
+        if top.len() > 1 {
+            let _ = write!(
+                out,
+                " ({}); they cannot be told apart with {seeds} seed{}.",
+                names[0],
+                plural(seeds)
+            );
+        } else {
+            out.push('.');
+        }
+        return out;
+    }
     let mut out = if top.len() == 1 {
         format!(
             "{} reaches {thr:.0}% clean success fastest: {} environment steps (IQM across seeds), final clean success {}.",
@@ -488,7 +512,7 @@ fn answer(h: &mut String, s: &StudySummary) {
             est_num(&v.final_reached.iqm),
             est_num(&v.final_collision.iqm),
             if v.episode_level.is_some() {
-                "<span class=ci>intervals over evaluation episodes (Wilson)</span>".to_string()
+                "<span class=ci>Wilson, over episodes</span>".to_string()
             } else {
                 notes(v)
             }
@@ -721,7 +745,7 @@ fn methods(h: &mut String, s: &StudySummary) {
 <li>Probability of improvement P(X &gt; Y) counts pairs of runs (ties count one half), with a stratified bootstrap interval. Mann-Whitney U p-values are two-sided: exact without ties for small samples, otherwise the normal approximation with tie and continuity corrections.</li>\
 <li>The classical controller is deterministic, so seeds add nothing: its proportions carry {:.0}% Wilson score intervals over its evaluation episodes (Wilson, JASA 1927). A learned variant beats it on a figure when the variant's interval lies entirely on the better side of the controller's.</li>\
 <li>Seeds needed: with d the observed log ratio of the top two variants' steps to threshold and sd its bootstrap standard deviation at n seeds, n' = n ((z<sub>1-α/2</sub> + z<sub>{:.2}</sub>) sd / |d|)² seeds per variant would show the difference with power {:.2}; an estimate that takes the observed difference and spread as true.</li>\
-<li>Reward-gaming flags: (1) mean clean success fell by at least {} after its peak while mean return rose by at least {:.0}% of its range; (2) from the evaluation with the longest episodes, mean episode length fell by at least {:.0}% while the collision rate rose by at least {} (episodes ended by crashing).</li></ul>",
+<li>Reward-gaming flags: (1) mean clean success fell by at least {} after its peak while mean return rose by at least {:.0}% of its range; (2) from the evaluation with the longest episodes, mean episode length fell by at least {:.0}% while the collision rate rose by at least {}, and the length fell by a larger fraction than the reached rate rose (newly reached goals can shorten the mean by at most their share), so episodes ended early without reaching the goal.</li></ul>",
         o.confidence * 100.0,
         o.resamples,
         o.seed,
