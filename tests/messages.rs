@@ -178,3 +178,44 @@ fn replay_refuses_an_output_folder_that_does_not_exist() {
     assert!(!err.contains("IOError"), "{err}");
     let _ = std::fs::remove_dir_all(&d);
 }
+
+#[test]
+fn check_says_a_key_the_base_leaves_unset_is_at_its_default() {
+    let d = scratch("unset");
+    let exp = experiment(&d, 1024);
+    let src = std::fs::read_to_string(&exp).unwrap()
+        + "[[variant]]\nname = \"no-goal\"\n[variant.reward.goal]\nweight = 0.0\n";
+    std::fs::write(&exp, src).unwrap();
+    let o = bin()
+        .args(["check", exp.to_str().unwrap(), "--no-calibrate"])
+        .output()
+        .unwrap();
+    let (out, err) = text(&o);
+    assert!(o.status.success(), "{err}");
+    assert!(
+        out.contains("reward.goal.weight = 0.0   (base: not set, so its default)"),
+        "{out}"
+    );
+    assert!(!out.contains("(unset)"), "{out}");
+    let _ = std::fs::remove_dir_all(&d);
+}
+
+#[test]
+fn check_reports_a_wrong_type_in_plain_words() {
+    let d = scratch("type");
+    let exp = experiment(&d, 1024);
+    let src = std::fs::read_to_string(&exp)
+        .unwrap()
+        .replace("seeds = 2", "seeds = \"two\"");
+    std::fs::write(&exp, src).unwrap();
+    let o = bin()
+        .args(["check", exp.to_str().unwrap(), "--no-calibrate"])
+        .output()
+        .unwrap();
+    let (_, err) = text(&o);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(err.contains("study.seeds"), "{err}");
+    assert!(err.contains("expected a whole number"), "{err}");
+    assert!(!err.contains("i64") && !err.contains("u32"), "{err}");
+    let _ = std::fs::remove_dir_all(&d);
+}

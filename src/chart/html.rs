@@ -657,11 +657,15 @@ fn changes(h: &mut String, s: &StudySummary) {
             c.push_str("<span class=na>none (the base configuration)</span>");
         }
         for ch in &v.info.changes {
+            let base = if ch.base == "(unset)" {
+                "<span class=na>default</span>".to_string()
+            } else {
+                esc(&ch.base)
+            };
             let _ = write!(
                 c,
-                "<code>{}</code>: {} → <b>{}</b><br>",
+                "<code>{}</code>: {base} → <b>{}</b><br>",
                 esc(&ch.key),
-                esc(&ch.base),
                 esc(&ch.value)
             );
         }

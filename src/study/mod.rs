@@ -267,7 +267,13 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
             let _ = writeln!(s, "      (the base configuration)");
         }
         for c in &v.changes {
-            let _ = writeln!(s, "      {} = {}   (base: {})", c.key, c.value, c.base);
+            // "(unset)" means the base leaves the key at its default: say so in words.
+            let base = if c.base == "(unset)" {
+                "not set, so its default".to_string()
+            } else {
+                c.base.clone()
+            };
+            let _ = writeln!(s, "      {} = {}   (base: {base})", c.key, c.value);
         }
     }
     let _ = writeln!(s, "plan ({} runs, `--cell K` runs one):", runs.len());
