@@ -219,3 +219,41 @@ fn check_reports_a_wrong_type_in_plain_words() {
     assert!(!err.contains("i64") && !err.contains("u32"), "{err}");
     let _ = std::fs::remove_dir_all(&d);
 }
+
+#[test]
+fn check_points_at_the_right_table_and_suggests_a_near_name() {
+    let d = scratch("blame");
+    // A bad value in the base table is the base's fault, not the first variant's.
+    let exp = experiment(&d, 1024);
+    let src = std::fs::read_to_string(&exp)
+        .unwrap()
+        .replace("[reward.time]\n", "[reward.time]\nweight = \"x\"\n");
+    std::fs::write(&exp, &src).unwrap();
+    let o = bin()
+        .args(["check", exp.to_str().unwrap(), "--no-calibrate"])
+        .output()
+        .unwrap();
+    let (_, err) = text(&o);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(err.contains("reward.time.weight"), "{err}");
+    assert!(!err.contains("in variant"), "{err}");
+    // A misspelt curriculum kind in a variant: its own line, the variant named, a suggestion.
+    let exp = experiment(&d, 1024);
+    let src = std::fs::read_to_string(&exp).unwrap()
+        + "[[variant]]\nname = \"starts\"\n[variant.curriculum]\nkind = \"revers\"\n";
+    std::fs::write(&exp, &src).unwrap();
+    let line = src.lines().position(|l| l.contains("\"revers\"")).unwrap() + 1;
+    let o = bin()
+        .args(["check", exp.to_str().unwrap(), "--no-calibrate"])
+        .output()
+        .unwrap();
+    let (_, err) = text(&o);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains(&format!("exp.toml:{line}:")),
+        "line {line}: {err}"
+    );
+    assert!(err.contains("did you mean `reverse`?"), "{err}");
+    assert!(err.contains("in variant `starts`"), "{err}");
+    let _ = std::fs::remove_dir_all(&d);
+}
