@@ -75,8 +75,26 @@ fn toml_error(src: &str, origin: &str, path: String, e: &toml::de::Error) -> Con
         origin: origin.to_string(),
         line,
         path,
-        message: e.message().trim().replace('\n', " "),
+        message: plain_words(&e.message().trim().replace('\n', " ")),
     }
+}
+
+/// Serde's type names in plain words: "invalid type: string \"x\", expected i64" becomes
+/// "wrong type: found string \"x\", expected a whole number".
+pub fn plain_words(message: &str) -> String {
+    let mut m = message.replace("invalid type: ", "wrong type: found ");
+    for (rust, words) in [
+        ("i64", "a whole number"),
+        ("i32", "a whole number"),
+        ("u64", "a whole number >= 0"),
+        ("u32", "a whole number >= 0"),
+        ("usize", "a whole number >= 0"),
+        ("f64", "a number"),
+        ("f32", "a number"),
+    ] {
+        m = m.replace(&format!("expected {rust}"), &format!("expected {words}"));
+    }
+    m
 }
 
 /// Best-effort line of a dotted key path such as `arm.link[1].mass` in TOML text: walks table headers
@@ -223,6 +241,25 @@ mod tests {
         assert!(e.path.starts_with("item[1]"), "{e}");
         assert!(e.to_string().contains("unknown field"), "{e}");
         assert!(!e.to_string().contains('\n'));
+    }
+
+    #[test]
+    fn type_errors_are_in_plain_words() {
+        #[derive(Debug, serde::Deserialize)]
+        #[allow(dead_code)]
+        struct T {
+            seeds: i64,
+            rate: f64,
+        }
+        let e = parse_toml::<T>("seeds = \"five\"\nrate = 0.5\n", "x.toml").unwrap_err();
+        assert!(
+            e.message.contains("expected a whole number"),
+            "{}",
+            e.message
+        );
+        assert!(!e.message.contains("i64"), "{}", e.message);
+        let e = parse_toml::<T>("seeds = 5\nrate = true\n", "x.toml").unwrap_err();
+        assert!(e.message.contains("expected a number"), "{}", e.message);
     }
 
     #[test]

@@ -10,6 +10,7 @@ pub mod chart;
 pub mod config;
 pub mod control;
 pub mod curriculum;
+pub mod fonts;
 pub mod fsio;
 pub mod learn;
 pub mod plan;

@@ -154,6 +154,11 @@ struct SummaryRow {
     rms_jerk_rad_s3_iqm: Option<f64>,
     min_clearance_m_iqm: Option<f64>,
     replans_iqm: Option<f64>,
+    final_reached_iqm: Option<f64>,
+    final_collision_rate_iqm: Option<f64>,
+    rank_group: Option<usize>,
+    interval_basis: String,
+    steps_ratio_vs_reference: Option<f64>,
     poi_final_success: Option<f64>,
     mw_p_steps_to_threshold: Option<f64>,
     reward_gaming_flag: bool,
@@ -258,10 +263,32 @@ fn report_writes_every_chart_and_each_names_every_variant() {
         assert!(r.path_length_m_iqm.is_some() && r.peak_joint_acc_rad_s2_iqm.is_some());
         assert!(r.rms_jerk_rad_s3_iqm.is_some() && r.min_clearance_m_iqm.is_some());
         assert!(r.replans_iqm.is_some());
-        if r.variant == "all-terms" {
-            assert!(r.poi_final_success.is_none());
+        // No probability of improvement or p-value for the reference itself, nor for the
+        // deterministic controller (one run is not a sample of seeds).
+        if r.variant == "all-terms" || r.kind == "baseline" {
+            assert!(r.poi_final_success.is_none(), "{}", r.variant);
+            assert!(r.steps_ratio_vs_reference.is_none(), "{}", r.variant);
         } else {
-            assert!(r.poi_final_success.is_some());
+            assert!(r.poi_final_success.is_some(), "{}", r.variant);
+        }
+        // Clean success never exceeds the reached rate; every rate is a fraction.
+        let (clean, reached, coll) = (
+            r.final_success_iqm.unwrap(),
+            r.final_reached_iqm.unwrap(),
+            r.final_collision_rate_iqm.unwrap(),
+        );
+        assert!(
+            clean <= reached + 1e-12 && (0.0..=1.0).contains(&coll),
+            "{}",
+            r.variant
+        );
+        if r.kind == "baseline" {
+            assert_eq!(r.interval_basis, "evaluation episodes (Wilson)");
+            assert!(r.rank_group.is_none());
+            // A Wilson interval over 20 episodes is wide, never a point.
+            assert!(r.final_success_iqm_hi.unwrap() > r.final_success_iqm_lo.unwrap());
+        } else {
+            assert_eq!(r.interval_basis, "seeds (stratified bootstrap)");
         }
         if r.kind == "learned" && r.variant != "all-terms" {
             assert!(r.mw_p_steps_to_threshold.is_some());

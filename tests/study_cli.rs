@@ -81,7 +81,7 @@ fn same_results_with_one_or_two_workers_and_resume_skips() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     for v in ["with-path", "without-path"] {
         for s in 0..2 {
-            for f in ["progress.csv", "terms.csv"] {
+            for f in ["evaluations.csv", "term_contributions.csv"] {
                 let pa = a.join(v).join(format!("seed-{s}")).join(f);
                 let x = std::fs::read(&pa).unwrap();
                 assert_eq!(
@@ -95,8 +95,8 @@ fn same_results_with_one_or_two_workers_and_resume_skips() {
     }
     // Seeds differ from each other (the check can fail).
     assert_ne!(
-        std::fs::read(a.join("with-path/seed-0/progress.csv")).unwrap(),
-        std::fs::read(a.join("with-path/seed-1/progress.csv")).unwrap()
+        std::fs::read(a.join("with-path/seed-0/evaluations.csv")).unwrap(),
+        std::fs::read(a.join("with-path/seed-1/evaluations.csv")).unwrap()
     );
     // A second run skips every finished run.
     let o = run(&exp, &a, "2");
@@ -152,7 +152,7 @@ fn replay_reproduces_recorded_evaluation() {
         .output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    let progress = std::fs::read_to_string(out.join("with-path/seed-0/progress.csv")).unwrap();
+    let progress = std::fs::read_to_string(out.join("with-path/seed-0/evaluations.csv")).unwrap();
     let last: Vec<f64> = progress
         .lines()
         .last()
@@ -170,9 +170,9 @@ fn replay_reproduces_recorded_evaluation() {
     let ret = rows.iter().map(|r| r[3]).sum::<f64>() / rows.len() as f64;
     assert_eq!(success, last[1]);
     assert!(
-        (ret - last[2]).abs() < 1e-9 * last[2].abs().max(1.0),
+        (ret - last[4]).abs() < 1e-9 * last[4].abs().max(1.0),
         "{ret} vs {}",
-        last[2]
+        last[4]
     );
     let _ = std::fs::remove_dir_all(&d);
 }

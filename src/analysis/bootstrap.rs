@@ -81,15 +81,33 @@ pub fn stratified_bootstrap<F>(
 where
     F: Fn(&[Vec<f64>]) -> f64,
 {
+    match bootstrap_distribution(strata, statistic, spec.resamples, seed) {
+        None => Estimate::NONE,
+        Some((point, values)) => percentile_interval(point, &values, spec.confidence),
+    }
+}
+
+/// The statistic on the observed data and its finite bootstrap replicates, sorted ascending
+/// (None when a stratum is empty). [`stratified_bootstrap`] reads its interval off these values;
+/// the seeds-needed estimate reads their spread.
+pub fn bootstrap_distribution<F>(
+    strata: &[&[f64]],
+    statistic: F,
+    resamples: usize,
+    seed: u64,
+) -> Option<(f64, Vec<f64>)>
+where
+    F: Fn(&[Vec<f64>]) -> f64,
+{
     if strata.is_empty() || strata.iter().any(|s| s.is_empty()) {
-        return Estimate::NONE;
+        return None;
     }
     let observed: Vec<Vec<f64>> = strata.iter().map(|s| s.to_vec()).collect();
     let point = statistic(&observed);
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let mut resampled = observed.clone();
-    let mut values = Vec::with_capacity(spec.resamples);
-    for _ in 0..spec.resamples {
+    let mut values = Vec::with_capacity(resamples);
+    for _ in 0..resamples {
         for (dst, src) in resampled.iter_mut().zip(strata) {
             for slot in dst.iter_mut() {
                 *slot = src[rng.gen_range(0..src.len())];
@@ -100,19 +118,24 @@ where
             values.push(v);
         }
     }
-    if values.is_empty() {
+    values.sort_by(f64::total_cmp);
+    Some((point, values))
+}
+
+/// Percentile interval at `confidence` from sorted bootstrap replicates (NaN ends when empty).
+pub fn percentile_interval(point: f64, sorted: &[f64], confidence: f64) -> Estimate {
+    if sorted.is_empty() {
         return Estimate {
             point,
             lo: f64::NAN,
             hi: f64::NAN,
         };
     }
-    values.sort_by(f64::total_cmp);
-    let alpha = 1.0 - spec.confidence;
+    let alpha = 1.0 - confidence;
     Estimate {
         point,
-        lo: quantile_sorted(&values, alpha / 2.0),
-        hi: quantile_sorted(&values, 1.0 - alpha / 2.0),
+        lo: quantile_sorted(sorted, alpha / 2.0),
+        hi: quantile_sorted(sorted, 1.0 - alpha / 2.0),
     }
 }
 

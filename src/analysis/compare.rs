@@ -147,6 +147,27 @@ pub fn normal_cdf(z: f64) -> f64 {
     normal_sf(-z)
 }
 
+/// Standard normal quantile: the z with Phi(z) = p, for p in (0, 1), found by bisection on
+/// [`normal_cdf`] to below 1e-13 in z (NaN outside (0, 1)).
+pub fn normal_quantile(p: f64) -> f64 {
+    if !(p > 0.0 && p < 1.0) {
+        return f64::NAN;
+    }
+    let (mut lo, mut hi) = (-40.0f64, 40.0f64);
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if normal_cdf(mid) < p {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+        if hi - lo < 1e-13 {
+            break;
+        }
+    }
+    0.5 * (lo + hi)
+}
+
 /// Complementary error function. |x| < 0.5: Maclaurin series of erf (Abramowitz & Stegun,
 /// "Handbook of Mathematical Functions", 1964, eq. 7.1.5); x >= 0.5: the continued fraction
 /// A&S eq. 7.1.14 evaluated by the modified Lentz method (Press et al., "Numerical Recipes",
@@ -297,6 +318,25 @@ mod tests {
             2.0 * (1.0 - std_normal.cdf(z)),
             max_relative = 1e-10
         );
+    }
+
+    #[test]
+    fn normal_quantile_inverts_the_cdf() {
+        // Reference crate: statrs 0.18 (Normal::inverse_cdf); the two textbook values
+        // z(0.975) = 1.959964 and z(0.8) = 0.841621 are in every normal table (e.g. Abramowitz &
+        // Stegun 1964, Table 26.5).
+        use statrs::distribution::{ContinuousCDF, Normal};
+        let std_normal = Normal::new(0.0, 1.0).unwrap();
+        for p in [0.001, 0.025, 0.2, 0.5, 0.8, 0.975, 0.995] {
+            assert_relative_eq!(
+                normal_quantile(p),
+                std_normal.inverse_cdf(p),
+                epsilon = 1e-8
+            );
+        }
+        assert_relative_eq!(normal_quantile(0.975), 1.959964, epsilon = 1e-6);
+        assert_relative_eq!(normal_quantile(0.8), 0.841621, epsilon = 1e-6);
+        assert!(normal_quantile(1.0).is_nan());
     }
 
     #[test]

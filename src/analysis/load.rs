@@ -6,13 +6,20 @@ use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-/// The header `progress.csv` must carry, in this order (results layout contract).
-pub const PROGRESS_HEADER: [&str; 14] = [
+/// Per-run table with one row per evaluation (the writer, `study::layout`, uses the same name).
+pub const EVALUATIONS_FILE: &str = "evaluations.csv";
+/// Per-run table of each reward term's mean per-episode contribution, one row per evaluation.
+pub const TERM_CONTRIBUTIONS_FILE: &str = "term_contributions.csv";
+
+/// The header `evaluations.csv` must carry, in this order (results layout contract).
+pub const EVALUATIONS_HEADER: [&str; 16] = [
     "env_steps",
-    "success_rate",
+    "clean_success_rate",
+    "reached_rate",
+    "collision_rate",
     "mean_return",
     "time_to_goal",
-    "collision_rate",
+    "episode_steps",
     "rms_joint_acc",
     "peak_joint_acc",
     "rms_jerk",
@@ -28,9 +35,9 @@ pub const PROGRESS_HEADER: [&str; 14] = [
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, serde::Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum VariantKind {
-    /// PPO-trained policy: progress.csv has one row per evaluation.
+    /// PPO-trained policy: evaluations.csv has one row per evaluation.
     Learned,
-    /// Classical tracking controller: progress.csv has one row at env_steps 0.
+    /// Classical tracking controller: evaluations.csv has one row at env_steps 0.
     Baseline,
 }
 
@@ -149,19 +156,24 @@ pub struct RunMeta {
     pub message: Option<String>,
 }
 
-/// One row of progress.csv.
+/// One row of evaluations.csv.
 #[derive(Debug, Clone, Copy, PartialEq, Deserialize)]
 pub struct EvalRow {
     /// Environment steps at this evaluation.
     pub env_steps: u64,
-    /// Fraction of evaluation episodes that reached the goal, in [0, 1].
+    /// Clean success: fraction of evaluation episodes that reached the goal with no contact, in [0, 1].
+    #[serde(rename = "clean_success_rate")]
     pub success_rate: f64,
+    /// Fraction of evaluation episodes that reached the goal, contact allowed, in [0, 1].
+    pub reached_rate: f64,
+    /// Fraction of episodes with any contact (obstacle, boundary or itself), in [0, 1].
+    pub collision_rate: f64,
     /// Mean shaped return per evaluation episode.
     pub mean_return: f64,
-    /// Mean time to goal over successful episodes, s (NaN when none succeeded).
+    /// Mean time to goal over clean successes, s (NaN when none succeeded).
     pub time_to_goal: f64,
-    /// Fraction of episodes with a collision.
-    pub collision_rate: f64,
+    /// Mean episode length, control steps.
+    pub episode_steps: f64,
     /// RMS joint acceleration, rad/s^2.
     pub rms_joint_acc: f64,
     /// Peak joint acceleration, rad/s^2.
@@ -182,7 +194,7 @@ pub struct EvalRow {
     pub curriculum_level: f64,
 }
 
-/// terms.csv: per-evaluation mean per-episode contribution of each reward term.
+/// term_contributions.csv: per-evaluation mean per-episode contribution of each reward term.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct TermTable {
     /// Term names in column order.
@@ -202,9 +214,9 @@ pub struct RunRecord {
     pub status: RunStatus,
     /// run.json (None when missing).
     pub meta: Option<RunMeta>,
-    /// progress.csv rows (empty when not written yet).
+    /// evaluations.csv rows (empty when not written yet).
     pub progress: Vec<EvalRow>,
-    /// terms.csv (empty when not written yet).
+    /// term_contributions.csv (empty when not written yet).
     pub terms: TermTable,
 }
 
@@ -294,13 +306,13 @@ fn load_run(run_dir: &Path, seed: u64) -> Result<RunRecord, AnalysisError> {
             })
         }
     };
-    let progress_path = run_dir.join("progress.csv");
+    let progress_path = run_dir.join(EVALUATIONS_FILE);
     let progress = if progress_path.is_file() {
-        read_progress(&progress_path)?
+        read_evaluations(&progress_path)?
     } else {
         Vec::new()
     };
-    let terms_path = run_dir.join("terms.csv");
+    let terms_path = run_dir.join(TERM_CONTRIBUTIONS_FILE);
     let terms = if terms_path.is_file() {
         read_terms(&terms_path)?
     } else {
@@ -333,8 +345,8 @@ fn csv_error(path: &Path, source: csv::Error) -> AnalysisError {
     }
 }
 
-/// Read progress.csv, checking the header is exactly the contract's.
-pub fn read_progress(path: &Path) -> Result<Vec<EvalRow>, AnalysisError> {
+/// Read evaluations.csv, checking the header is exactly the contract's.
+pub fn read_evaluations(path: &Path) -> Result<Vec<EvalRow>, AnalysisError> {
     let mut reader = csv::Reader::from_path(path).map_err(|e| csv_error(path, e))?;
     let header: Vec<String> = reader
         .headers()
@@ -345,11 +357,11 @@ pub fn read_progress(path: &Path) -> Result<Vec<EvalRow>, AnalysisError> {
     if header
         .iter()
         .map(String::as_str)
-        .ne(PROGRESS_HEADER.iter().copied())
+        .ne(EVALUATIONS_HEADER.iter().copied())
     {
         return Err(AnalysisError::BadHeader {
             path: path.to_path_buf(),
-            expected: PROGRESS_HEADER.join(","),
+            expected: EVALUATIONS_HEADER.join(","),
             found: header.join(","),
         });
     }
@@ -359,7 +371,7 @@ pub fn read_progress(path: &Path) -> Result<Vec<EvalRow>, AnalysisError> {
         .map_err(|e| csv_error(path, e))
 }
 
-/// Read terms.csv: `env_steps` then one column per reward term.
+/// Read term_contributions.csv: `env_steps` then one column per reward term.
 pub fn read_terms(path: &Path) -> Result<TermTable, AnalysisError> {
     let mut reader = csv::Reader::from_path(path).map_err(|e| csv_error(path, e))?;
     let header = reader.headers().map_err(|e| csv_error(path, e))?.clone();

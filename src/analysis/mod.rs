@@ -18,8 +18,9 @@ pub use load::{
 };
 pub use run_metrics::{RunMetrics, Threshold};
 pub use summary::{
-    summarize, Aggregate, AnalysisOptions, Comparison, Curve, CurveMetric, GamingFlag, PointStat,
-    StatusCounts, StudySummary, ThresholdAggregate, VariantSummary,
+    summarize, verdict, Aggregate, AnalysisOptions, Comparison, CrashFlag, Curve, CurveMetric,
+    Effects, EpisodeLevel, GamingFlag, PointStat, SeedsNeeded, StatusCounts, StudySummary,
+    ThresholdAggregate, VariantSummary, Verdict,
 };
 
 use std::path::PathBuf;

@@ -44,8 +44,14 @@ pub struct RunMetrics {
     pub auc: Option<f64>,
     /// Steps to the success threshold.
     pub steps_to_threshold: Threshold,
-    /// Mean success rate over the final window.
+    /// Mean clean success rate (goal reached, no contact) over the final window.
     pub final_success: Option<f64>,
+    /// Mean reached rate (goal reached, contact allowed) over the final window.
+    pub final_reached: Option<f64>,
+    /// Mean collision rate (episodes with any contact) over the final window.
+    pub final_collision: Option<f64>,
+    /// Mean episode length over the final window, control steps.
+    pub episode_steps: Option<f64>,
     /// Mean return over the final window.
     pub final_return: Option<f64>,
     /// Mean time to goal over the final window, s.
@@ -97,6 +103,9 @@ pub fn run_metrics(run: &RunRecord, ctx: &RunContext) -> RunMetrics {
         auc: None,
         steps_to_threshold: Threshold::NotApplicable,
         final_success: None,
+        final_reached: None,
+        final_collision: None,
+        episode_steps: None,
         final_return: None,
         time_to_goal: None,
         rms_joint_acc: None,
@@ -134,6 +143,7 @@ pub fn run_metrics(run: &RunRecord, ctx: &RunContext) -> RunMetrics {
                 Some(success_auc(rows, ctx.budget_steps, true))
             };
             m.final_success = Some(0.0);
+            m.final_reached = Some(0.0);
         }
         _ => {}
     }
@@ -147,6 +157,9 @@ fn fill_final(m: &mut RunMetrics, rows: &[EvalRow], window: usize) {
         (!v.is_empty()).then(|| mean(&v))
     };
     m.final_success = avg(|r| r.success_rate);
+    m.final_reached = avg(|r| r.reached_rate);
+    m.final_collision = avg(|r| r.collision_rate);
+    m.episode_steps = avg(|r| r.episode_steps);
     m.final_return = avg(|r| r.mean_return);
     m.time_to_goal = avg(|r| r.time_to_goal);
     m.rms_joint_acc = avg(|r| r.rms_joint_acc);
@@ -193,9 +206,11 @@ mod tests {
         EvalRow {
             env_steps: step,
             success_rate: success,
+            reached_rate: success,
+            collision_rate: 0.0,
             mean_return: 0.0,
             time_to_goal: f64::NAN,
-            collision_rate: 0.0,
+            episode_steps: 100.0,
             rms_joint_acc: 1.0,
             peak_joint_acc: 2.0,
             rms_jerk: 3.0,

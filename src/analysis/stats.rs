@@ -73,10 +73,53 @@ pub fn finite(xs: impl IntoIterator<Item = f64>) -> Vec<f64> {
     xs.into_iter().filter(|x| x.is_finite()).collect()
 }
 
+/// Wilson score interval of a proportion: `successes` of `n` trials, two-sided at `confidence`
+/// (Wilson, "Probable inference, the law of succession, and statistical inference", JASA 22, 1927).
+/// Used for the classical controller, whose spread comes from its evaluation episodes, not seeds.
+/// Centre (p + z^2/2n) / (1 + z^2/n), half-width z / (1 + z^2/n) * sqrt(p(1-p)/n + z^2/4n^2).
+/// NaN ends when n = 0.
+pub fn wilson_interval(successes: f64, n: f64, confidence: f64) -> (f64, f64) {
+    if n <= 0.0 {
+        return (f64::NAN, f64::NAN);
+    }
+    let z = super::compare::normal_quantile(0.5 + confidence / 2.0);
+    let p = (successes / n).clamp(0.0, 1.0);
+    let z2 = z * z;
+    let denom = 1.0 + z2 / n;
+    let centre = (p + z2 / (2.0 * n)) / denom;
+    let half = z / denom * (p * (1.0 - p) / n + z2 / (4.0 * n * n)).sqrt();
+    ((centre - half).max(0.0), (centre + half).min(1.0))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
+
+    #[test]
+    fn wilson_interval_matches_newcombes_worked_examples() {
+        // Newcombe, "Two-sided confidence intervals for the single proportion: comparison of seven
+        // methods", Statistics in Medicine 17, 1998, Table II, method 3 (score interval without
+        // continuity correction), 95%; values quoted from memory, four decimals as printed there.
+        for (r, n, lo, hi) in [
+            (81.0, 263.0, 0.2553, 0.3662),
+            (15.0, 148.0, 0.0624, 0.1605),
+            (0.0, 20.0, 0.0, 0.1611),
+            (1.0, 29.0, 0.0061, 0.1718),
+        ] {
+            let (a, b) = wilson_interval(r, n, 0.95);
+            assert!((a - lo).abs() < 6e-5, "{r}/{n}: lo {a} vs {lo}");
+            assert!((b - hi).abs() < 6e-5, "{r}/{n}: hi {b} vs {hi}");
+        }
+        // 0 of n: the upper end is z^2 / (n + z^2) exactly (set p = 0 in Wilson's formula).
+        let z2 = 1.959963984540054f64.powi(2);
+        assert_relative_eq!(
+            wilson_interval(0.0, 30.0, 0.95).1,
+            z2 / (30.0 + z2),
+            epsilon = 1e-9
+        );
+        assert!(wilson_interval(0.0, 0.0, 0.95).0.is_nan());
+    }
 
     /// Digits of agreement as NIST scores them: -log10(|computed - certified| / |certified|),
     /// capped at 15 (NIST StRD, "Univariate Summary Statistics", background on the LRE).

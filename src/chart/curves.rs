@@ -5,7 +5,7 @@
 use super::render::Chart;
 use super::style::*;
 use super::ChartError;
-use crate::analysis::{CurveMetric, StudySummary, VariantKind, VariantSummary};
+use crate::analysis::{CurveMetric, Estimate, StudySummary, VariantKind, VariantSummary};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -17,11 +17,23 @@ struct Panel {
     fixed: Option<(f64, f64)>,
 }
 
-const LEARNING_PANELS: [Panel; 4] = [
+const LEARNING_PANELS: [Panel; 6] = [
     Panel {
         metric: CurveMetric::Success,
-        title: "Success rate (higher is better)",
-        y_label: "success rate (fraction of eval episodes)",
+        title: "Clean success: reached, no contact (higher is better)",
+        y_label: "clean success rate (fraction of eval episodes)",
+        fixed: Some((0.0, 1.0)),
+    },
+    Panel {
+        metric: CurveMetric::Reached,
+        title: "Reached the goal, contact allowed",
+        y_label: "reached rate (fraction of eval episodes)",
+        fixed: Some((0.0, 1.0)),
+    },
+    Panel {
+        metric: CurveMetric::Collision,
+        title: "Collision rate (lower is better)",
+        y_label: "episodes with contact (fraction)",
         fixed: Some((0.0, 1.0)),
     },
     Panel {
@@ -32,7 +44,7 @@ const LEARNING_PANELS: [Panel; 4] = [
     },
     Panel {
         metric: CurveMetric::TimeToGoal,
-        title: "Time to goal, successful episodes (lower is faster)",
+        title: "Time to goal, clean successes (lower is faster)",
         y_label: "time to goal (s)",
         fixed: None,
     },
@@ -106,7 +118,7 @@ impl Chart for LearningCurves<'_> {
         "learning_curves"
     }
     fn size(&self) -> (u32, u32) {
-        (1400, 1040)
+        (1800, 1040)
     }
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ChartError> {
         let s = self.summary;
@@ -129,7 +141,7 @@ impl Chart for LearningCurves<'_> {
         let _ = top;
         let (legend_area, plots) = rest.split_vertically(lh);
         draw_legend(&legend_area, &legend, name)?;
-        let cells = plots.split_evenly((2, 2));
+        let cells = plots.split_evenly((2, 3));
         for (cell, panel) in cells.iter().zip(&LEARNING_PANELS) {
             draw_panel(cell, s, panel, &all, self.per_seed, name)?;
         }
@@ -301,6 +313,20 @@ fn draw_panel<DB: DrawingBackend>(
     Ok(())
 }
 
+/// The flat level of a baseline on `metric`: for the rates, the value with its interval over the
+/// evaluation episodes (Wilson); otherwise its single evaluation (no interval).
+fn baseline_level(v: &VariantSummary, metric: CurveMetric) -> Option<Estimate> {
+    if let Some(e) = &v.episode_level {
+        match metric {
+            CurveMetric::Success => return Some(e.success),
+            CurveMetric::Reached => return Some(e.reached),
+            CurveMetric::Collision => return Some(e.collision),
+            _ => {}
+        }
+    }
+    v.curves[&metric].points.first().map(|p| p.iqm)
+}
+
 type F64Chart<'a, DB> = ChartContext<
     'a,
     DB,
@@ -317,10 +343,10 @@ fn draw_band<DB: DrawingBackend>(
     let c = &v.curves[&metric];
     let fill = variant_colour(v.index).mix(0.16).filled();
     if v.info.kind == VariantKind::Baseline {
-        if let Some(p) = c.points.first().filter(|p| p.iqm.lo.is_finite()) {
+        if let Some(p) = baseline_level(v, metric).filter(|p| p.lo.is_finite()) {
             chart
                 .draw_series(std::iter::once(Rectangle::new(
-                    [(0.0, p.iqm.lo), (x_max, p.iqm.hi)],
+                    [(0.0, p.lo), (x_max, p.hi)],
                     variant_colour(v.index).mix(0.08).filled(),
                 )))
                 .map_err(draw_err(name))?;
@@ -364,8 +390,8 @@ fn draw_centre<DB: DrawingBackend>(
     let c = &v.curves[&metric];
     let colour = variant_colour(v.index);
     if v.info.kind == VariantKind::Baseline {
-        if let Some(p) = c.points.first().filter(|p| p.iqm.point.is_finite()) {
-            let y = p.iqm.point;
+        if let Some(p) = baseline_level(v, metric).filter(|p| p.point.is_finite()) {
+            let y = p.point;
             styled_line(
                 chart,
                 &[(0.0, y), (x_max, y)],

@@ -4,7 +4,9 @@
 
 use super::render::ChartFiles;
 use super::style::fmt_steps;
-use crate::analysis::{Estimate, RunStatus, StudySummary, Threshold, VariantKind, VariantSummary};
+use crate::analysis::{
+    verdict, Estimate, RunStatus, StudySummary, Threshold, VariantKind, VariantSummary, Verdict,
+};
 use std::fmt::Write;
 
 /// Escape text for HTML.
@@ -114,6 +116,8 @@ th{background:#f1efe7;font-weight:600}
 td.num{font-variant-numeric:tabular-nums;white-space:nowrap}
 .ci{color:#6e6e7a;font-size:12px}.na{color:#9a9aa5}.tag{background:#efe9da;border-radius:3px;padding:0 5px;font-size:12px;white-space:nowrap}
 .flag{color:#b03428;font-weight:600}
+tr.yardstick td{background:#f6f4ee;border-top:2px solid #d9d6cc}
+#headline{font-size:17px}
 td:has(.sw){white-space:nowrap}
 .sw{display:inline-block;width:12px;height:12px;border-radius:2px;margin-right:6px;vertical-align:-1px;border:1px solid rgba(0,0,0,.25)}
 figure{margin:18px 0 30px;background:#fff;padding:10px;box-shadow:0 1px 3px rgba(0,0,0,.08)}
@@ -127,7 +131,7 @@ pre{background:#fff;padding:10px;overflow:auto;border:1px solid #e6e4dc}
 /// What each chart answers, shown under it.
 fn caption(stem: &str) -> &'static str {
     match stem {
-        "learning_curves" => "IQM across seeds per variant with a shaded bootstrap confidence band; faint lines are single seeds; baselines are flat dashed lines. Read the success panel first: the earlier a curve crosses the dotted threshold, the faster the variant learns. The lower panels show how the learned motion differs (time to goal, joint acceleration).",
+        "learning_curves" => "IQM across seeds per variant with a shaded bootstrap confidence band; faint lines are single seeds; the classical controller is a flat dashed line with a band over its evaluation episodes. Top row, side by side: clean success (goal reached with no contact — read this first: the earlier a curve crosses the dotted threshold, the faster the variant learns), reached rate (contact allowed) and collision rate. A gap between reached and clean success is the share of episodes that got there by touching something. Bottom row: return, time to goal and joint acceleration.",
         "steps_to_threshold" => "Steps to reach the success threshold per variant, fastest first: diamond = IQM, bar = confidence interval, dots = single runs, open triangles at the budget = runs that never reached it (censored; their true value is larger than the budget). Overlapping bars mean the data do not separate the variants.",
         "reward_terms" => "Mean per-episode contribution of each reward term over training. The term with the largest magnitude drives the return; a term that grows while success stays flat is a candidate for being gamed.",
         "shaping_check" => "Shaped return (solid) against task success (dotted, right axis) per variant. Return and success should rise together; a red frame marks a variant whose return kept rising after its success peaked and fell.",
@@ -148,10 +152,9 @@ pub fn report_html(s: &StudySummary, charts: &[ChartFiles]) -> String {
     );
     let _ = write!(
         h,
-        "<h1>Study “{}”</h1><p class=lede>{} variants × {} seeds; budget {} environment steps per run; success threshold {}; reference variant <b>{}</b>. Runs: {} done, {} diverged, {} interrupted, {} running, {} missing (of {}).</p>",
+        "<h1>Study “{}”</h1><p class=lede>{}; budget {} environment steps per run; clean-success threshold {}; reference variant <b>{}</b>. Runs: {} done, {} diverged, {} interrupted, {} running, {} missing (of {}). <b>Success means clean success</b> throughout: the goal region reached with no contact in the episode; episodes that reached the goal after touching something count in the reached rate, and every episode with contact in the collision rate.</p>",
         esc(&s.study.name),
-        s.variants.len(),
-        s.study.seeds.len(),
+        plan_phrase(s),
         fmt_steps(s.study.budget_steps as f64),
         s.study.success_threshold,
         esc(&s.reference),
@@ -196,102 +199,353 @@ fn strip_xml_decl(svg: &str) -> &str {
     }
 }
 
-fn answer(h: &mut String, s: &StudySummary) {
-    h.push_str("<h2>The answer</h2><div class=answer>");
-    let rank = s.ranking();
-    let best = rank
-        .first()
-        .filter(|&&i| s.variants[i].steps_to_threshold.iqm.point.is_finite());
-    if best.is_none() {
-        h.push_str("<p>No run has finished or reached the threshold yet, so there is no ranking to report.</p>");
-    }
-    if let Some(&best) = best {
-        let b = &s.variants[best];
+/// "3 learned variants × 5 seeds + the classical controller (1 deterministic run)", with the
+/// singular where it applies.
+pub fn plan_phrase(s: &StudySummary) -> String {
+    let learned = s
+        .variants
+        .iter()
+        .filter(|v| v.info.kind == VariantKind::Learned)
+        .count();
+    let baselines = s.variants.len() - learned;
+    let mut out = format!(
+        "{} learned variant{} × {} seed{}",
+        learned,
+        plural(learned),
+        s.study.seeds.len(),
+        plural(s.study.seeds.len())
+    );
+    if baselines > 0 {
         let _ = write!(
-            h,
-            "<p><b>{}</b> ranks first: it reached {:.0}% success in {} environment steps (IQM across seeds), with final success {}.</p>",
-            esc(&b.info.name),
-            s.study.success_threshold * 100.0,
-            steps_cell(b),
-            est_num(&b.final_success.iqm)
+            out,
+            " + {} classical controller{} (one deterministic run each)",
+            baselines,
+            plural(baselines)
         );
     }
+    out
+}
+
+fn plural(n: usize) -> &'static str {
+    if n == 1 {
+        ""
+    } else {
+        "s"
+    }
+}
+
+/// "A", "A and B", "A, B and C".
+fn join_names(names: &[String]) -> String {
+    match names.len() {
+        0 => String::new(),
+        1 => names[0].clone(),
+        n => format!("{} and {}", names[..n - 1].join(", "), names[n - 1]),
+    }
+}
+
+fn ratio_text(e: &Estimate) -> String {
+    if !e.point.is_finite() {
+        return "<span class=na>n/a</span>".into();
+    }
+    if e.lo.is_finite() {
+        format!(
+            "{:.2}× <span class=ci>[{:.2}, {:.2}]</span>",
+            e.point, e.lo, e.hi
+        )
+    } else {
+        format!("{:.2}×", e.point)
+    }
+}
+
+fn diff_text(e: &Estimate) -> String {
+    if !e.point.is_finite() {
+        return "<span class=na>n/a</span>".into();
+    }
+    if e.lo.is_finite() {
+        format!(
+            "{:+.2} <span class=ci>[{:+.2}, {:+.2}]</span>",
+            e.point, e.lo, e.hi
+        )
+    } else {
+        format!("{:+.2}", e.point)
+    }
+}
+
+/// The headline: what the data show and what they do not.
+pub fn headline(s: &StudySummary) -> String {
+    let thr = s.study.success_threshold * 100.0;
+    let top = s.group_members(0);
+    let Some(&leader) = top.first() else {
+        return "No learned run has finished or reached the threshold yet, so there is no ranking to report.".into();
+    };
+    let l = &s.variants[leader];
+    let names: Vec<String> = top
+        .iter()
+        .map(|&i| format!("<b>{}</b>", esc(&s.variants[i].info.name)))
+        .collect();
+    let seeds = s.study.seeds.len();
+    let nobody_reached = s
+        .ranking()
+        .iter()
+        .all(|&i| s.variants[i].steps_to_threshold.reached == 0);
+    if nobody_reached {
+        let mut out = format!(
+            "No learned variant reached {thr:.0}% clean success within the budget ({} environment steps per run) in any seed, so none can be ranked on speed. By final clean success, {} lead{} with {}",
+            fmt_steps(s.study.budget_steps as f64),
+            join_names(&names),
+            if top.len() == 1 { "s" } else { "" },
+            est_num(&l.final_success.iqm)
+        );
+        if top.len() > 1 {
+            let _ = write!(
+                out,
+                " ({}); they cannot be told apart with {seeds} seed{}.",
+                names[0],
+                plural(seeds)
+            );
+        } else {
+            out.push('.');
+        }
+        return out;
+    }
+    let mut out = if top.len() == 1 {
+        format!(
+            "{} reaches {thr:.0}% clean success fastest: {} environment steps (IQM across seeds), final clean success {}.",
+            names[0],
+            steps_cell(l),
+            est_num(&l.final_success.iqm)
+        )
+    } else {
+        format!(
+            "{} reach {thr:.0}% clean success fastest and cannot be told apart with {seeds} seed{}: {} needs {} environment steps (IQM across seeds), final clean success {}.",
+            join_names(&names),
+            plural(seeds),
+            names[0],
+            steps_cell(l),
+            est_num(&l.final_success.iqm)
+        )
+    };
+    match s.gap {
+        Some((_, b, r)) if r.point.is_finite() => {
+            let _ = write!(
+                out,
+                " <b>{}</b>, the best of the rest, needs {} as many steps as {}.",
+                esc(&s.variants[b].info.name),
+                ratio_text(&r),
+                names[0]
+            );
+        }
+        Some((_, b, _)) => {
+            let _ = write!(
+                out,
+                " <b>{}</b> and the rest are separated by final clean success, not by speed.",
+                esc(&s.variants[b].info.name)
+            );
+        }
+        None => {
+            let ranked = s
+                .ranking()
+                .iter()
+                .filter(|&&i| s.variants[i].group.is_some())
+                .count();
+            if ranked > 1 && top.len() == ranked {
+                let _ = write!(
+                    out,
+                    " The data do not separate any of the {ranked} learned variants."
+                );
+            }
+        }
+    }
+    if let Some(n) = s
+        .seeds_needed
+        .filter(|n| s.variants[n.second].group == s.variants[n.first].group)
+    {
+        let (a, b) = (
+            &s.variants[n.first].info.name,
+            &s.variants[n.second].info.name,
+        );
+        match n.seeds {
+            Some(k) => {
+                let _ = write!(
+                    out,
+                    " Telling {} from {} on steps to threshold would take about {} seeds per variant at the observed spread (an estimate; {} now).",
+                    esc(a),
+                    esc(b),
+                    if k >= 1000 { "1000 or more".to_string() } else { k.to_string() },
+                    n.seeds_now
+                );
+            }
+            None => {
+                let _ = write!(
+                    out,
+                    " {} and {} show no difference in steps to threshold, so no number of seeds can be estimated from these runs.",
+                    esc(a),
+                    esc(b)
+                );
+            }
+        }
+    }
+    out
+}
+
+/// A figure compared against the controller: name, accessor, whether higher is better.
+type Figure = (&'static str, fn(&VariantSummary) -> Estimate, bool);
+
+/// One sentence per baseline: its figures with episode-level intervals and which learned variants
+/// beat it on which figure.
+pub fn yardstick_text(s: &StudySummary) -> Vec<String> {
+    let figures: [Figure; 4] = [
+        ("clean success", |v| v.final_success.iqm, true),
+        ("collision rate", |v| v.final_collision.iqm, false),
+        ("time to goal", |v| v.time_to_goal.iqm, false),
+        ("RMS joint acceleration", |v| v.rms_joint_acc.iqm, false),
+    ];
+    let mut out = Vec::new();
+    for b in s.baselines() {
+        let base = &s.variants[b];
+        let mut t = format!("<b>{}</b> (yardstick, not ranked)", esc(&base.info.name));
+        match &base.episode_level {
+            Some(e) => {
+                let _ = write!(
+                    t,
+                    ": clean success {}, reached {}, collision rate {} over its {} evaluation episodes (Wilson intervals: the controller is deterministic, so its spread comes from the episodes, not from seeds).",
+                    est_num(&e.success),
+                    est_num(&e.reached),
+                    est_num(&e.collision),
+                    e.episodes
+                );
+            }
+            None => {
+                let _ = write!(t, ": clean success {}.", est_num(&base.final_success.iqm));
+            }
+        }
+        let mut parts = Vec::new();
+        for (name, f, higher) in figures {
+            let (mut better, mut worse) = (Vec::new(), Vec::new());
+            for i in s.ranking() {
+                let v = &s.variants[i];
+                match verdict(&f(v), &f(base), higher) {
+                    Some(Verdict::Better) => better.push(esc(&v.info.name)),
+                    Some(Verdict::Worse) => worse.push(esc(&v.info.name)),
+                    _ => {}
+                }
+            }
+            let mut p = format!("{name}: ");
+            if better.is_empty() {
+                p.push_str("no learned variant beats it");
+            } else {
+                let _ = write!(
+                    p,
+                    "{} beat{} it",
+                    join_names(&better),
+                    if better.len() == 1 { "s" } else { "" }
+                );
+            }
+            if !worse.is_empty() {
+                let _ = write!(
+                    p,
+                    ", {} fall{} short",
+                    join_names(&worse),
+                    if worse.len() == 1 { "s" } else { "" }
+                );
+            }
+            parts.push(p);
+        }
+        let _ = write!(
+            t,
+            " Against it — {}; the rest cannot be told apart from it.",
+            parts.join("; ")
+        );
+        out.push(t);
+    }
+    out
+}
+
+fn answer(h: &mut String, s: &StudySummary) {
+    h.push_str("<h2>The answer</h2><div class=answer>");
+    let _ = write!(h, "<p id=headline>{}</p>", headline(s));
+    let conf = s.options.confidence * 100.0;
     let _ = write!(
         h,
-        "<table><tr><th>rank</th><th>variant</th><th>steps to {:.0}% success<br><span class=ci>IQM [{:.0}% CI]</span></th><th>final success<br><span class=ci>IQM [CI]</span></th><th>P(better final success than {})<br><span class=ci>[CI]</span></th><th>P(fewer steps than {})<br><span class=ci>[CI]</span></th><th>Mann-Whitney p<br><span class=ci>final success / steps</span></th><th>notes</th></tr>",
+        "<div style=\"overflow-x:auto\"><table id=ranking><tr><th>group</th><th>variant</th><th>steps to {:.0}% clean success<br><span class=ci>IQM [{conf:.0}% CI]</span></th><th>final clean success<br><span class=ci>IQM [CI]</span></th><th>reached<br><span class=ci>contact allowed</span></th><th>collision rate<br><span class=ci>episodes with contact</span></th><th>steps vs {ref}<br><span class=ci>ratio [CI], &lt;1 faster</span></th><th>clean success vs {ref}<br><span class=ci>difference [CI]</span></th><th>AUC vs {ref}<br><span class=ci>difference [CI]</span></th><th>notes</th></tr>",
         s.study.success_threshold * 100.0,
-        s.options.confidence * 100.0,
-        esc(&s.reference),
-        esc(&s.reference)
+        ref = esc(&s.reference)
     );
-    for (r, &i) in rank.iter().enumerate() {
+    let rank = s.ranking();
+    for &i in &rank {
         let v = &s.variants[i];
-        let (poi_s, poi_t, mw) = match &v.vs_reference {
+        let group = match v.group {
+            Some(0) => "1 <span class=tag>tied with the leader</span>".to_string(),
+            Some(g) => format!("{}", g + 1),
+            None => "<span class=na>not ranked</span>".into(),
+        };
+        let (r, d, a) = match &v.vs_reference {
             Some(c) => (
-                est_num(&c.poi_final_success),
-                if v.info.kind == VariantKind::Baseline {
-                    "<span class=na>n/a</span>".into()
-                } else {
-                    est_num(&c.poi_steps)
-                },
-                format!(
-                    "{} / {}",
-                    p_cell(c.mw_final_success),
-                    if v.info.kind == VariantKind::Baseline {
-                        "<span class=na>n/a</span>".into()
-                    } else {
-                        p_cell(c.mw_steps)
-                    }
-                ),
+                ratio_text(&c.effects.steps_ratio),
+                diff_text(&c.effects.success_diff),
+                diff_text(&c.effects.auc_diff),
             ),
             None => (
                 "<span class=na>reference</span>".into(),
                 "<span class=na>reference</span>".into(),
-                String::new(),
+                "<span class=na>reference</span>".into(),
             ),
         };
-        let mut notes = Vec::new();
-        if v.gaming.is_some() {
-            notes.push("<span class=flag>return rose while success fell</span>".to_string());
-        }
-        for (status, label) in [
-            (RunStatus::Diverged, "diverged"),
-            (RunStatus::Interrupted, "interrupted"),
-            (RunStatus::Running, "running"),
-            (RunStatus::Missing, "missing"),
-        ] {
-            let n = v.status.get(status);
-            if n > 0 {
-                notes.push(format!("<span class=tag>{n} {label}</span>"));
-            }
-        }
         let _ = write!(
             h,
-            "<tr><td>{}</td><td>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td>{}</td></tr>",
-            r + 1,
+            "<tr><td>{group}</td><td>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{r}</td><td class=num>{d}</td><td class=num>{a}</td><td>{}</td></tr>",
             swatch(v),
             steps_cell(v),
             est_num(&v.final_success.iqm),
-            poi_s,
-            poi_t,
-            mw,
-            notes.join(" ")
+            est_num(&v.final_reached.iqm),
+            est_num(&v.final_collision.iqm),
+            notes(v)
         );
     }
-    h.push_str("</table>");
+    for b in s.baselines() {
+        let v = &s.variants[b];
+        let _ = write!(
+            h,
+            "<tr class=yardstick><td><span class=tag>yardstick</span></td><td>{}</td><td class=num><span class=na>no learning</span></td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num><span class=na>—</span></td><td class=num><span class=na>—</span></td><td class=num><span class=na>—</span></td><td>{}</td></tr>",
+            swatch(v),
+            est_num(&v.final_success.iqm),
+            est_num(&v.final_reached.iqm),
+            est_num(&v.final_collision.iqm),
+            if v.episode_level.is_some() {
+                "<span class=ci>Wilson, over episodes</span>".to_string()
+            } else {
+                notes(v)
+            }
+        );
+    }
+    h.push_str("</table></div>");
+    for t in yardstick_text(s) {
+        let _ = write!(h, "<p>{t}</p>");
+    }
     let flagged: Vec<String> = s
         .variants
         .iter()
         .filter_map(|v| {
             v.gaming.map(|g| {
                 format!(
-                    "<b>{}</b> (success peaked at {} steps and then fell by {:.2} while the return kept rising)",
+                    "<b>{}</b> (clean success peaked at {} steps and then fell by {:.2} while the return kept rising)",
                     esc(&v.info.name),
                     fmt_steps(g.peak_step as f64),
                     g.success_drop
                 )
             })
         })
+        .chain(s.variants.iter().filter_map(|v| {
+            v.crashing.map(|c| {
+                format!(
+                    "<b>{}</b> (from {} steps its episodes got {:.0}% shorter while its collision rate rose by {:.2}: it may be ending episodes by crashing)",
+                    esc(&v.info.name),
+                    fmt_steps(c.from_step as f64),
+                    c.length_drop * 100.0,
+                    c.collision_rise
+                )
+            })
+        }))
         .collect();
     if !flagged.is_empty() {
         let _ = write!(
@@ -300,11 +554,71 @@ fn answer(h: &mut String, s: &StudySummary) {
             flagged.join("; ")
         );
     }
-    h.push_str("<p class=ci>Ranking: fewest steps to threshold first (censored runs count as the budget), ties broken by final success; baselines last. P(…) is the probability that a random run of the variant beats a random run of the reference.</p></div>");
+    let _ = write!(
+        h,
+        "<p class=ci>Rank groups: learned variants are ordered by steps to threshold (censored runs count as the budget), then by final clean success. Walking down that order, a variant stays in the group of the leader above it unless the stratified bootstrap interval of its steps ratio to that leader lies entirely above 1, or the interval of its clean-success difference lies entirely below 0; intervals at {:.1}% ({conf:.0}% Bonferroni-adjusted for the number of comparisons). Variants in one group cannot be told apart with these seeds. Effects are against the reference <b>{}</b>: IQM ratio or difference, with {conf:.0}% stratified bootstrap intervals. The classical controller is a yardstick: it is not ranked and gets no p-value.</p>",
+        s.group_confidence * 100.0,
+        esc(&s.reference)
+    );
+    pairwise(h, s);
+    h.push_str("</div>");
+}
+
+fn notes(v: &VariantSummary) -> String {
+    let mut notes = Vec::new();
+    if v.gaming.is_some() {
+        notes.push("<span class=flag>return rose while clean success fell</span>".to_string());
+    }
+    if v.crashing.is_some() {
+        notes.push("<span class=flag>episodes shortened by collisions</span>".to_string());
+    }
+    for (status, label) in [
+        (RunStatus::Diverged, "diverged"),
+        (RunStatus::Interrupted, "interrupted"),
+        (RunStatus::Running, "running"),
+        (RunStatus::Missing, "missing"),
+    ] {
+        let n = v.status.get(status);
+        if n > 0 {
+            notes.push(format!("<span class=tag>{n} {label}</span>"));
+        }
+    }
+    notes.join(" ")
+}
+
+/// Probability of improvement and Mann-Whitney p against the reference, learned variants only.
+fn pairwise(h: &mut String, s: &StudySummary) {
+    let rows: Vec<&VariantSummary> = s
+        .ranking()
+        .into_iter()
+        .map(|i| &s.variants[i])
+        .filter(|v| v.vs_reference.is_some())
+        .collect();
+    if rows.is_empty() {
+        return;
+    }
+    let _ = write!(
+        h,
+        "<details><summary>Pairwise tests against {}</summary><table><tr><th>variant</th><th>P(better final clean success)<br><span class=ci>[CI]</span></th><th>P(fewer steps)<br><span class=ci>[CI]</span></th><th>Mann-Whitney p<br><span class=ci>final clean success / steps</span></th></tr>",
+        esc(&s.reference)
+    );
+    for v in rows {
+        let c = v.vs_reference.as_ref().expect("filtered");
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{} / {}</td></tr>",
+            swatch(v),
+            est_num(&c.poi_final_success),
+            est_num(&c.poi_steps),
+            p_cell(c.mw_final_success),
+            p_cell(c.mw_steps)
+        );
+    }
+    h.push_str("</table><p class=ci>P(…) is the probability that a random run of the variant beats a random run of the reference. p-values are not corrected for multiple comparisons; the rank groups above are.</p></details>");
 }
 
 fn summary_table(h: &mut String, s: &StudySummary) {
-    h.push_str("<h2>Summary table</h2><p class=ci>IQM across runs with the bootstrap confidence interval; final figures are means over the last evaluations of each run. The same numbers, with means, are in summary.csv.</p><div style=\"overflow-x:auto\"><table><tr><th>variant</th><th>runs<br><span class=ci>done/planned</span></th><th>AUC<br><span class=ci>success curve, 0–1</span></th><th>final success</th><th>final return</th><th>time to goal<br><span class=ci>s</span></th><th>RMS joint acc.<br><span class=ci>rad/s²</span></th><th>peak joint acc.<br><span class=ci>rad/s²</span></th><th>RMS jerk<br><span class=ci>rad/s³</span></th><th>path length<br><span class=ci>m</span></th><th>min clearance<br><span class=ci>m</span></th><th>replans<br><span class=ci>per episode</span></th></tr>");
+    h.push_str("<h2>Summary table</h2><p class=ci>IQM across runs with the bootstrap confidence interval (for the classical controller: the interval over its evaluation episodes); final figures are means over the last evaluations of each run. The same numbers, with means, are in summary.csv.</p><div style=\"overflow-x:auto\"><table><tr><th>variant</th><th>runs<br><span class=ci>done/planned</span></th><th>AUC<br><span class=ci>success curve, 0–1</span></th><th>final clean success</th><th>reached<br><span class=ci>contact allowed</span></th><th>collision rate</th><th>episode length<br><span class=ci>control steps</span></th><th>final return</th><th>time to goal<br><span class=ci>s</span></th><th>RMS joint acc.<br><span class=ci>rad/s²</span></th><th>peak joint acc.<br><span class=ci>rad/s²</span></th><th>RMS jerk<br><span class=ci>rad/s³</span></th><th>path length<br><span class=ci>m</span></th><th>min clearance<br><span class=ci>m</span></th><th>replans<br><span class=ci>per episode</span></th></tr>");
     for v in &s.variants {
         let _ = write!(
             h,
@@ -316,6 +630,9 @@ fn summary_table(h: &mut String, s: &StudySummary) {
         for a in [
             &v.auc,
             &v.final_success,
+            &v.final_reached,
+            &v.final_collision,
+            &v.episode_steps,
             &v.final_return,
             &v.time_to_goal,
             &v.rms_joint_acc,
@@ -340,11 +657,15 @@ fn changes(h: &mut String, s: &StudySummary) {
             c.push_str("<span class=na>none (the base configuration)</span>");
         }
         for ch in &v.info.changes {
+            let base = if ch.base == "(unset)" {
+                "<span class=na>default</span>".to_string()
+            } else {
+                esc(&ch.base)
+            };
             let _ = write!(
                 c,
-                "<code>{}</code>: {} → <b>{}</b><br>",
+                "<code>{}</code>: {base} → <b>{}</b><br>",
                 esc(&ch.key),
-                esc(&ch.base),
                 esc(&ch.value)
             );
         }
@@ -421,17 +742,25 @@ fn methods(h: &mut String, s: &StudySummary) {
         h,
         "<h2>How these numbers were computed</h2><ul>\
 <li>IQM = interquartile mean, the mean of the middle 50% of runs (25% trimmed mean); intervals are {:.0}% percentile intervals of a stratified bootstrap that resamples seeds within each variant, {} resamples, seed {} (Agarwal et al., “Deep RL at the Edge of the Statistical Precipice”, NeurIPS 2021).</li>\
-<li>Steps to threshold: first evaluation with success rate ≥ {}. Runs that finished without reaching it are censored at the budget (shown as such, ranked worse than any run that reached it; “≥” marks an IQM that is only a lower bound). Unfinished runs that have not reached it yet are left out and counted.</li>\
-<li>AUC: area under the success-rate curve from the first evaluation to the budget divided by its width (1 = always successful). Final figures: mean of the last {} evaluations.</li>\
+<li>Success means clean success: an evaluation episode succeeds when the effector reaches the goal region and no contact (obstacle, workspace boundary or the arm itself) happened in it. The reached rate counts episodes that reached the goal, contact allowed; the collision rate counts episodes with any contact.</li>\
+<li>Steps to threshold: first evaluation with clean success rate ≥ {}. Runs that finished without reaching it are censored at the budget (shown as such, ranked worse than any run that reached it; “≥” marks an IQM that is only a lower bound). Unfinished runs that have not reached it yet are left out and counted.</li>\
+<li>AUC: area under the clean-success curve from the first evaluation to the budget divided by its width (1 = always successful). Final figures: mean of the last {} evaluations.</li>\
 <li>Diverged runs count as failures: success 0 after divergence and final success 0; interrupted or running runs are excluded from AUC and final figures. Every run is listed under Run status.</li>\
 <li>Probability of improvement P(X &gt; Y) counts pairs of runs (ties count one half), with a stratified bootstrap interval. Mann-Whitney U p-values are two-sided: exact without ties for small samples, otherwise the normal approximation with tie and continuity corrections.</li>\
-<li>Reward-gaming flag: mean success fell by at least {} after its peak while mean return rose by at least {:.0}% of its range.</li></ul>",
+<li>The classical controller is deterministic, so seeds add nothing: its proportions carry {:.0}% Wilson score intervals over its evaluation episodes (Wilson, JASA 1927). A learned variant beats it on a figure when the variant's interval lies entirely on the better side of the controller's.</li>\
+<li>Seeds needed: with d the observed log ratio of the top two variants' steps to threshold and sd its bootstrap standard deviation at n seeds, n' = n ((z<sub>1-α/2</sub> + z<sub>{:.2}</sub>) sd / |d|)² seeds per variant would show the difference with power {:.2}; an estimate that takes the observed difference and spread as true.</li>\
+<li>Reward-gaming flags: (1) mean clean success fell by at least {} after its peak while mean return rose by at least {:.0}% of its range; (2) from the evaluation with the longest episodes, mean episode length fell by at least {:.0}% while the collision rate rose by at least {}, and the length fell by a larger fraction than the reached rate rose (newly reached goals can shorten the mean by at most their share), so episodes ended early without reaching the goal.</li></ul>",
         o.confidence * 100.0,
         o.resamples,
         o.seed,
         s.study.success_threshold,
         s.study.final_window,
+        o.confidence * 100.0,
+        o.power,
+        o.power,
         o.gaming_success_drop,
-        o.gaming_return_rise * 100.0
+        o.gaming_return_rise * 100.0,
+        o.crash_length_drop * 100.0,
+        o.crash_collision_rise
     );
 }

@@ -142,7 +142,7 @@ impl Chart for TermChart<'_> {
             if v.terms.is_empty() {
                 let (cx, cy) = chart.backend_coord(&(x_max / 2.0, (lo + hi) / 2.0));
                 root.draw(&Text::new(
-                    "no terms.csv yet".to_string(),
+                    "no term_contributions.csv yet".to_string(),
                     (cx, cy),
                     anchored(14, MUTED, HPos::Center, VPos::Center),
                 ))

@@ -32,6 +32,7 @@ pub struct ChartFiles {
 
 /// Render `chart` into `charts_dir/<stem>.svg` and `.png`.
 pub fn render<C: Chart>(chart: &C, charts_dir: &Path) -> Result<ChartFiles, ChartError> {
+    crate::fonts::register();
     let stem = chart.stem();
     let size = chart.size();
     let mut svg_text = String::new();

@@ -1,5 +1,6 @@
 //! summary.csv: one row per variant with every study figure and its confidence interval, plus the
-//! run-status counts, so the numbers behind the charts can be read by other tools.
+//! run-status counts, so the numbers behind the charts can be read by other tools. "success" in a
+//! column name always means clean success (goal reached, no contact).
 
 use crate::analysis::{Aggregate, Estimate, PValueMethod, StudySummary, VariantKind};
 
@@ -22,6 +23,8 @@ pub fn header() -> Vec<String> {
         "steps_to_threshold_censored",
         "steps_to_threshold_pending",
         "steps_to_threshold_iqm_is_lower_bound",
+        "rank_group",
+        "interval_basis",
     ]
     .iter()
     .map(|s| s.to_string())
@@ -32,6 +35,18 @@ pub fn header() -> Vec<String> {
         }
     }
     for c in [
+        "steps_ratio_vs_reference",
+        "steps_ratio_vs_reference_lo",
+        "steps_ratio_vs_reference_hi",
+        "clean_success_diff_vs_reference",
+        "clean_success_diff_vs_reference_lo",
+        "clean_success_diff_vs_reference_hi",
+        "auc_diff_vs_reference",
+        "auc_diff_vs_reference_lo",
+        "auc_diff_vs_reference_hi",
+        "collision_rate_diff_vs_reference",
+        "collision_rate_diff_vs_reference_lo",
+        "collision_rate_diff_vs_reference_hi",
         "poi_final_success",
         "poi_final_success_lo",
         "poi_final_success_hi",
@@ -43,15 +58,19 @@ pub fn header() -> Vec<String> {
         "mw_p_steps_to_threshold",
         "mw_method_steps_to_threshold",
         "reward_gaming_flag",
+        "crash_shortening_flag",
     ] {
         h.push(c.into());
     }
     h
 }
 
-const AGG_NAMES: [&str; 10] = [
+const AGG_NAMES: [&str; 13] = [
     "auc",
     "final_success",
+    "final_reached",
+    "final_collision_rate",
+    "episode_steps",
     "final_return",
     "time_to_goal_s",
     "rms_joint_acc_rad_s2",
@@ -114,10 +133,19 @@ pub fn summary_csv(s: &StudySummary) -> Result<Vec<u8>, csv::Error> {
             t.censored.to_string(),
             t.pending.to_string(),
             t.lower_bound.to_string(),
+            v.group.map(|g| (g + 1).to_string()).unwrap_or_default(),
+            if v.episode_level.is_some() {
+                "evaluation episodes (Wilson)".to_string()
+            } else {
+                "seeds (stratified bootstrap)".to_string()
+            },
         ]);
         for a in [
             &v.auc,
             &v.final_success,
+            &v.final_reached,
+            &v.final_collision,
+            &v.episode_steps,
             &v.final_return,
             &v.time_to_goal,
             &v.rms_joint_acc,
@@ -131,6 +159,15 @@ pub fn summary_csv(s: &StudySummary) -> Result<Vec<u8>, csv::Error> {
         }
         match &v.vs_reference {
             Some(c) => {
+                let e = &c.effects;
+                for x in [
+                    &e.steps_ratio,
+                    &e.success_diff,
+                    &e.auc_diff,
+                    &e.collision_diff,
+                ] {
+                    row.extend(est(x));
+                }
                 row.extend(est(&c.poi_final_success));
                 row.extend(est(&c.poi_steps));
                 for mw in [&c.mw_final_success, &c.mw_steps] {
@@ -140,9 +177,10 @@ pub fn summary_csv(s: &StudySummary) -> Result<Vec<u8>, csv::Error> {
                     }
                 }
             }
-            None => row.extend(std::iter::repeat_n(String::new(), 10)),
+            None => row.extend(std::iter::repeat_n(String::new(), 22)),
         }
         row.push(v.gaming.is_some().to_string());
+        row.push(v.crashing.is_some().to_string());
         w.write_record(&row)?;
     }
     w.into_inner().map_err(|e| e.into_error().into())

@@ -1,17 +1,66 @@
 //! The short plain-text ranking printed at the end of `termwise run` and `termwise report`.
 
 use super::style::fmt_steps;
-use crate::analysis::{StudySummary, VariantKind};
+use crate::analysis::{Estimate, StudySummary, VariantSummary};
 use std::fmt::Write;
 
-/// A few lines: run status, the ranking with intervals, and any reward-gaming flags.
+fn est(e: &Estimate) -> String {
+    if !e.point.is_finite() {
+        "n/a".into()
+    } else if e.lo.is_finite() {
+        format!("{:.2} [{:.2}, {:.2}]", e.point, e.lo, e.hi)
+    } else {
+        format!("{:.2}", e.point)
+    }
+}
+
+fn steps(v: &VariantSummary) -> String {
+    let t = &v.steps_to_threshold;
+    if !t.iqm.point.is_finite() {
+        return "n/a".into();
+    }
+    format!(
+        "{}{} [{}, {}]{}",
+        if t.lower_bound { ">=" } else { "" },
+        fmt_steps(t.iqm.point),
+        fmt_steps(t.iqm.lo),
+        fmt_steps(t.iqm.hi),
+        if t.censored > 0 {
+            format!(" {}/{} cens.", t.censored, t.reached + t.censored)
+        } else {
+            String::new()
+        }
+    )
+}
+
+/// The report's HTML sentence as plain text (tags dropped, the few entities it uses decoded).
+pub fn plain(html: &str) -> String {
+    let mut out = String::with_capacity(html.len());
+    let mut in_tag = false;
+    for c in html.chars() {
+        match c {
+            '<' => in_tag = true,
+            '>' => in_tag = false,
+            _ if !in_tag => out.push(c),
+            _ => {}
+        }
+    }
+    out.replace("&lt;", "<")
+        .replace("&gt;", ">")
+        .replace("&quot;", "\"")
+        .replace("&amp;", "&")
+}
+
+/// A few lines: run status, the rank groups with intervals, the controller as a yardstick, the
+/// headline and any reward-gaming flags. Success means clean success (goal reached, no contact).
 pub fn terminal_summary(s: &StudySummary) -> String {
     let st = &s.status;
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "study '{}': {} of {} runs done, {} diverged, {} interrupted, {} running, {} missing",
+        "study '{}' ({}): {} of {} runs done, {} diverged, {} interrupted, {} running, {} missing",
         s.study.name,
+        plain(&super::html::plan_phrase(s)),
         st.done,
         st.total(),
         st.diverged,
@@ -26,48 +75,36 @@ pub fn terminal_summary(s: &StudySummary) -> String {
         .max()
         .unwrap_or(7)
         .max(7);
+    let steps_head = format!(
+        "steps to {:.0}% clean success",
+        s.study.success_threshold * 100.0
+    );
     let _ = writeln!(
         out,
-        "{:>4}  {:<width$}  {:<32}  final success (IQM, CI)",
-        "rank",
-        "variant",
-        format!(
-            "steps to {:.0}% success (IQM, CI)",
-            s.study.success_threshold * 100.0
-        ),
+        "{:<9}  {:<width$}  {:<34}  {:<20}  {:<20}  steps vs {}",
+        "group", "variant", steps_head, "clean success", "collision rate", s.reference
     );
-    for (r, &i) in s.ranking().iter().enumerate() {
+    for i in s.ranking() {
         let v = &s.variants[i];
-        let steps = if v.info.kind == VariantKind::Baseline {
-            "baseline".to_string()
-        } else {
-            let t = &v.steps_to_threshold;
-            if t.iqm.point.is_finite() {
-                format!(
-                    "{}{} [{}, {}]{}",
-                    if t.lower_bound { ">=" } else { "" },
-                    fmt_steps(t.iqm.point),
-                    fmt_steps(t.iqm.lo),
-                    fmt_steps(t.iqm.hi),
-                    if t.censored > 0 {
-                        format!(" {}/{} cens.", t.censored, t.reached + t.censored)
-                    } else {
-                        String::new()
-                    }
-                )
-            } else {
-                "n/a".to_string()
-            }
+        let group = match v.group {
+            Some(0) => "1 (lead)".to_string(),
+            Some(g) => (g + 1).to_string(),
+            None => "-".to_string(),
         };
-        let f = &v.final_success.iqm;
-        let success = if f.point.is_finite() {
-            format!("{:.2} [{:.2}, {:.2}]", f.point, f.lo, f.hi)
-        } else {
-            "n/a".into()
+        let vs = match &v.vs_reference {
+            Some(c) if c.effects.steps_ratio.point.is_finite() => {
+                let r = &c.effects.steps_ratio;
+                format!("{:.2}x [{:.2}, {:.2}]", r.point, r.lo, r.hi)
+            }
+            Some(_) => "n/a".into(),
+            None => "reference".into(),
         };
         let mut notes = String::new();
         if v.gaming.is_some() {
-            notes.push_str("  ! return up, success down");
+            notes.push_str("  ! return up, clean success down");
+        }
+        if v.crashing.is_some() {
+            notes.push_str("  ! episodes shortened by collisions");
         }
         let bad = v.status.diverged + v.status.interrupted;
         if bad > 0 {
@@ -75,13 +112,32 @@ pub fn terminal_summary(s: &StudySummary) -> String {
         }
         let _ = writeln!(
             out,
-            "{:>4}  {:<width$}  {:<32}  {}{}",
-            r + 1,
+            "{:<9}  {:<width$}  {:<34}  {:<20}  {:<20}  {}{}",
+            group,
             v.info.name,
-            steps,
-            success,
+            steps(v),
+            est(&v.final_success.iqm),
+            est(&v.final_collision.iqm),
+            vs,
             notes
         );
+    }
+    for b in s.baselines() {
+        let v = &s.variants[b];
+        let _ = writeln!(
+            out,
+            "{:<9}  {:<width$}  {:<34}  {:<20}  {:<20}  (not ranked; intervals over {} evaluation episodes)",
+            "yardstick",
+            v.info.name,
+            "no learning",
+            est(&v.final_success.iqm),
+            est(&v.final_collision.iqm),
+            v.episode_level.map_or(0, |e| e.episodes)
+        );
+    }
+    let _ = writeln!(out, "{}", plain(&super::html::headline(s)));
+    for t in super::html::yardstick_text(s) {
+        let _ = writeln!(out, "{}", plain(&t));
     }
     out
 }

@@ -39,7 +39,7 @@ impl Chart for ThresholdChart<'_> {
         let head = draw_title(
             root,
             &format!(
-                "How many environment steps until {:.0}% success?",
+                "How many environment steps until {:.0}% clean success (goal reached, no contact)?",
                 s.study.success_threshold * 100.0
             ),
             &format!(

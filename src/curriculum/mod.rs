@@ -215,10 +215,13 @@ impl CurriculumSpec {
             .find(|c| c.name == self.kind)
             .ok_or_else(|| {
                 let names: Vec<_> = REGISTRY.iter().map(|c| c.name).collect();
+                let hint = crate::reward::nearest(&self.kind, &names)
+                    .map(|n| format!(" (did you mean `{n}`?)"))
+                    .unwrap_or_default();
                 err(
                     "kind",
                     format!(
-                        "unknown curriculum `{}`; known: {}",
+                        "unknown curriculum `{}`{hint}; known: {}",
                         self.kind,
                         names.join(", ")
                     ),

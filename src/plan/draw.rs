@@ -124,6 +124,7 @@ pub fn draw<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
     scene: &Scene,
 ) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    crate::fonts::register();
     let sc = scene.scenario;
     let arm = &sc.arm;
     let rep = scene.report;
@@ -250,6 +251,7 @@ pub fn draw<DB: DrawingBackend>(
 
 /// The scene as SVG text.
 pub fn svg(scene: &Scene) -> Result<String, String> {
+    crate::fonts::register();
     let mut out = String::new();
     {
         let root = SVGBackend::with_string(&mut out, SIZE).into_drawing_area();
@@ -260,6 +262,7 @@ pub fn svg(scene: &Scene) -> Result<String, String> {
 
 /// Render the scene as a PNG file at `path` (written to a temporary sibling, then renamed).
 pub fn png(scene: &Scene, path: &std::path::Path) -> Result<(), String> {
+    crate::fonts::register();
     let tmp = crate::fsio::temp_sibling(path).with_extension("png");
     {
         let root = BitMapBackend::new(&tmp, SIZE).into_drawing_area();

@@ -24,7 +24,7 @@ pub enum ReplayError {
         path: PathBuf,
         source: std::io::Error,
     },
-    #[error("drawing: {0}")]
+    #[error("drawing the replay: {0}")]
     Draw(String),
 }
 
@@ -110,6 +110,49 @@ pub fn record(v: &VariantSpec, controller: &Controller, eval_seed: u64, j: u64) 
     }
 }
 
+/// How the episode ended, in the words of the report: clean success means the goal was reached
+/// with no contact.
+pub fn outcome_label(m: &EpisodeMetrics) -> &'static str {
+    match (m.success, m.reached, m.collided) {
+        (true, _, _) => "clean success",
+        (false, true, _) => "reached the goal, with contact (not a clean success)",
+        (false, false, true) => "goal not reached, with contact",
+        (false, false, false) => "goal not reached",
+    }
+}
+
+/// Greedy word wrap of `parts` (joined by two spaces) into lines no wider than `max_px` as
+/// measured by `width`; a single part wider than the limit gets a line of its own.
+pub fn wrap_parts(parts: &[String], max_px: u32, width: &dyn Fn(&str) -> u32) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    for p in parts {
+        match lines.last_mut() {
+            Some(l) if width(&format!("{l}  {p}")) <= max_px => {
+                l.push_str("  ");
+                l.push_str(p);
+            }
+            _ => lines.push(p.clone()),
+        }
+    }
+    lines
+}
+
+/// The caption of frame `k`: variant, time and return, then each reward term's running sum.
+pub fn caption_parts(v: &VariantSpec, rec: &Recording, k: usize) -> Vec<String> {
+    let f = &rec.frames[k];
+    let mut parts = vec![format!(
+        "{}   t {:.2} s   return {:.2}",
+        v.name, f.report.t, f.ret
+    )];
+    for (n, s) in rec.term_names.iter().zip(&f.terms) {
+        parts.push(format!("{n} {s:.2}"));
+    }
+    parts
+}
+
+/// Caption font size, px.
+const CAPTION_PX: u32 = 12;
+
 fn draw_frame<DB: DrawingBackend>(
     area: &DrawingArea<DB, plotters::coord::Shift>,
     v: &VariantSpec,
@@ -125,17 +168,29 @@ where
     let (x0, x1) = (sc.workspace_min[0], sc.workspace_max[0]);
     let (y0, y1) = (sc.workspace_min[1], sc.workspace_max[1]);
     area.fill(&WHITE).map_err(|e| e.to_string())?;
-    let cap = if caption {
-        let mut c = format!("t {:.2} s  return {:.2}", f.report.t, f.ret);
-        for (n, s) in rec.term_names.iter().zip(&f.terms) {
-            let _ = write!(c, "  {n} {s:.2}");
-        }
-        c
-    } else {
-        format!("t {:.2} s", f.report.t)
+    let (w, _) = area.dim_in_pixel();
+    let style = ("sans-serif", CAPTION_PX).into_font();
+    let measure = |t: &str| {
+        area.estimate_text_size(t, &TextStyle::from(style.clone()))
+            .map_or(u32::MAX, |(w, _)| w)
     };
-    let mut chart = ChartBuilder::on(area)
-        .caption(cap, ("sans-serif", 11))
+    // The caption is wrapped to the frame's width so it never runs off an edge.
+    let lines = if caption {
+        wrap_parts(&caption_parts(v, rec, k), w.saturating_sub(16), &measure)
+    } else {
+        vec![format!("t {:.2} s", f.report.t)]
+    };
+    let line_h = CAPTION_PX + 4;
+    for (i, l) in lines.iter().enumerate() {
+        area.draw(&Text::new(
+            l.clone(),
+            (8, 4 + (i as u32 * line_h) as i32),
+            style.color(&RGBColor(40, 44, 52)),
+        ))
+        .map_err(|e| e.to_string())?;
+    }
+    let (_, body) = area.split_vertically(8 + lines.len() as u32 * line_h);
+    let mut chart = ChartBuilder::on(&body)
         .margin(6)
         .build_cartesian_2d(x0..x1, y0..y1)
         .map_err(|e| e.to_string())?;
@@ -214,6 +269,88 @@ where
     chart
         .draw_series(arm.iter().map(|p| Circle::new(*p, 4, WHITE.filled())))
         .map_err(|e| e.to_string())?;
+    // Scale bar in the lower left: a round length near a fifth of the workspace width.
+    let bar = scale_bar_length(x1 - x0);
+    let (bx, by) = (x0 + 0.04 * (x1 - x0), y0 + 0.05 * (y1 - y0));
+    chart
+        .draw_series(std::iter::once(PathElement::new(
+            vec![(bx, by), (bx + bar, by)],
+            ink.stroke_width(2),
+        )))
+        .map_err(|e| e.to_string())?;
+    chart
+        .draw_series(std::iter::once(Text::new(
+            format!("{bar} m"),
+            (bx, by + 0.045 * (y1 - y0)),
+            ("sans-serif", 11).into_font().color(&ink),
+        )))
+        .map_err(|e| e.to_string())?;
+    Ok(())
+}
+
+/// A round scale-bar length (1, 2 or 5 times a power of ten) no longer than a fifth of `span`, m.
+pub fn scale_bar_length(span: f64) -> f64 {
+    let target = (span / 5.0).max(1e-9);
+    let p = 10f64.powf(target.log10().floor());
+    [5.0, 2.0, 1.0]
+        .iter()
+        .map(|m| m * p)
+        .find(|&l| l <= target)
+        .unwrap_or(p)
+}
+
+/// The filmstrip's header: variant, outcome, and a legend of what the frames show.
+fn draw_filmstrip_header<DB: DrawingBackend>(
+    area: &DrawingArea<DB, plotters::coord::Shift>,
+    v: &VariantSpec,
+    rec: &Recording,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    area.fill(&WHITE).map_err(|e| e.to_string())?;
+    let ink = RGBColor(40, 44, 52);
+    let title = format!(
+        "{}: {} ({} steps, {:.2} s), 12 frames evenly spread over the episode",
+        v.name,
+        outcome_label(&rec.metrics),
+        rec.frames.len() - 1,
+        rec.frames.last().map_or(0.0, |f| f.report.t)
+    );
+    area.draw(&Text::new(
+        title,
+        (10, 8),
+        ("sans-serif", 16).into_font().color(&ink),
+    ))
+    .map_err(|e| e.to_string())?;
+    let items: [(&str, RGBColor, bool); 5] = [
+        ("arm", ink, false),
+        ("obstacles", RGBColor(150, 150, 160), true),
+        ("reference path and waypoints", RGBColor(0, 114, 178), false),
+        ("goal region", RGBColor(213, 94, 0), false),
+        ("effector trail", RGBColor(0, 158, 115), false),
+    ];
+    let mut x = 10i32;
+    let y = 36i32;
+    let style = ("sans-serif", 13).into_font();
+    for (label, colour, filled) in items {
+        if filled {
+            area.draw(&Rectangle::new([(x, y), (x + 18, y + 12)], colour.filled()))
+                .map_err(|e| e.to_string())?;
+        } else {
+            area.draw(&PathElement::new(
+                vec![(x, y + 6), (x + 18, y + 6)],
+                colour.stroke_width(3),
+            ))
+            .map_err(|e| e.to_string())?;
+        }
+        area.draw(&Text::new(label, (x + 24, y - 1), style.color(&ink)))
+            .map_err(|e| e.to_string())?;
+        let w = area
+            .estimate_text_size(label, &TextStyle::from(style.clone()))
+            .map_or(120, |(w, _)| w) as i32;
+        x += 24 + w + 22;
+    }
     Ok(())
 }
 
@@ -223,6 +360,7 @@ pub fn write_gif(path: &Path, v: &VariantSpec, rec: &Recording) -> Result<(), Re
     let delay = ((v.scenario.control_dt() * stride as f64) * 1000.0)
         .round()
         .max(10.0) as u32;
+    crate::fonts::register();
     let tmp = crate::fsio::temp_sibling(path);
     {
         let root = BitMapBackend::gif(&tmp, (560, 600), delay)
@@ -249,11 +387,15 @@ pub fn write_gif(path: &Path, v: &VariantSpec, rec: &Recording) -> Result<(), Re
 /// Write a grid of 12 frames evenly spread over the episode as one PNG.
 pub fn write_filmstrip(path: &Path, v: &VariantSpec, rec: &Recording) -> Result<(), ReplayError> {
     let (cols, rows) = (4usize, 3usize);
+    crate::fonts::register();
     let tmp = crate::fsio::temp_sibling(path).with_extension("png");
     {
-        let root =
-            BitMapBackend::new(&tmp, (cols as u32 * 300, rows as u32 * 320)).into_drawing_area();
-        let cells = root.split_evenly((rows, cols));
+        let header = 60u32;
+        let root = BitMapBackend::new(&tmp, (cols as u32 * 300, rows as u32 * 320 + header))
+            .into_drawing_area();
+        let (top, grid) = root.split_vertically(header);
+        draw_filmstrip_header(&top, v, rec).map_err(ReplayError::Draw)?;
+        let cells = grid.split_evenly((rows, cols));
         let last = rec.frames.len() - 1;
         for (i, cell) in cells.iter().enumerate() {
             let k = (i * last) / (cols * rows - 1);
@@ -269,7 +411,8 @@ pub fn write_filmstrip(path: &Path, v: &VariantSpec, rec: &Recording) -> Result<
 }
 
 /// Header of the per-episode metrics CSV.
-pub const EPISODE_HEADER: &str = "episode,success,time_to_goal,return,collided,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks";
+/// `clean_success` = goal reached with no contact; `reached` = goal reached, contact allowed.
+pub const EPISODE_HEADER: &str = "episode,clean_success,time_to_goal,return,collided,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks,reached";
 
 /// Options of `termwise replay`.
 pub struct ReplayArgs {
@@ -381,6 +524,20 @@ fn check_fit(
     Ok(())
 }
 
+/// Refuse, before any rollout, an output file whose folder does not exist.
+fn check_output_folder(flag: &str, path: Option<&Path>) -> Result<(), ReplayError> {
+    let Some(path) = path else { return Ok(()) };
+    match path.parent().filter(|d| !d.as_os_str().is_empty()) {
+        Some(dir) if !dir.is_dir() => Err(ReplayError::Bad(format!(
+            "{flag} {}: folder {} does not exist (create it first, e.g. `mkdir -p {}`)",
+            path.display(),
+            dir.display(),
+            dir.display()
+        ))),
+        _ => Ok(()),
+    }
+}
+
 /// The whole `termwise replay` command. Returns a one-line summary.
 pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
     let exp = crate::study::experiment::load(&a.experiment)?;
@@ -403,16 +560,24 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
             ))
         }
     };
+    for (flag, path) in [
+        ("--out", &a.out),
+        ("--filmstrip", &a.filmstrip),
+        ("--metrics-out", &a.metrics_out),
+    ] {
+        check_output_folder(flag, path.as_deref())?;
+    }
     let seed = a.seed.unwrap_or(exp.study.eval_seed);
     let mut said = Vec::new();
     if let Some(out) = &a.out {
         let rec = record(&v, &controller, seed, 0);
         write_gif(out, &v, &rec)?;
         said.push(format!(
-            "{} ({} steps, success {})",
+            "{} ({} steps, clean success {}, contact {})",
             out.display(),
             rec.frames.len() - 1,
-            rec.metrics.success
+            rec.metrics.success,
+            rec.metrics.collided
         ));
         if let Some(fs) = &a.filmstrip {
             write_filmstrip(fs, &v, &rec)?;
@@ -433,7 +598,7 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
             let m = record(&v, &controller, seed, j).metrics;
             let _ = writeln!(
                 csv,
-                "{j},{},{},{},{},{},{},{},{},{},{},{},{}",
+                "{j},{},{},{},{},{},{},{},{},{},{},{},{},{}",
                 m.success as u8,
                 m.time_to_goal.unwrap_or(f64::NAN),
                 m.ret,
@@ -445,7 +610,8 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
                 m.min_clearance,
                 m.path_deviation,
                 m.replans,
-                m.fallbacks
+                m.fallbacks,
+                m.reached as u8
             );
             eps.push(m);
         }
@@ -459,9 +625,11 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
         })?;
         let s = crate::study::task::EvalSummary::from_episodes(&eps);
         said.push(format!(
-            "{} ({n} episodes, success rate {:.3}, mean return {:.3})",
+            "{} ({n} episodes, clean success rate {:.3}, reached rate {:.3}, collision rate {:.3}, mean return {:.3})",
             path.display(),
             s.success_rate,
+            s.reached_rate,
+            s.collision_rate,
             s.mean_return
         ));
     }
@@ -471,4 +639,44 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
         ));
     }
     Ok(format!("termwise: wrote {}", said.join(", ")))
+}
+
+#[cfg(test)]
+mod caption_tests {
+    use super::*;
+
+    #[test]
+    fn captions_wrap_within_the_frame_and_bars_are_round() {
+        crate::fonts::register();
+        let width = |t: &str| {
+            let (w, _) = plotters::style::FontDesc::from(("sans-serif", CAPTION_PX as f64))
+                .box_size(t)
+                .expect("layout");
+            w
+        };
+        let parts: Vec<String> = [
+            "all-terms-along-path   t 3.98 s   return -12.41",
+            "goal 0.00",
+            "time -0.40",
+            "acceleration -1.83",
+            "waypoint_distance -2.20",
+            "waypoint_progress 1.92",
+            "collision -0.35",
+        ]
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+        // The GIF is 560 px wide with 8 px margins each side.
+        let lines = wrap_parts(&parts, 544, &width);
+        assert!(lines.len() >= 2, "{lines:?}");
+        for l in &lines {
+            assert!(width(l) <= 544, "{l} is {} px", width(l));
+        }
+        // Nothing is lost by wrapping.
+        assert_eq!(lines.join("  "), parts.join("  "));
+        // 1-2-5 scale bars no longer than a fifth of the span.
+        assert_eq!(scale_bar_length(2.4), 0.2);
+        assert_eq!(scale_bar_length(3.0), 0.5);
+        assert_eq!(scale_bar_length(10.0), 2.0);
+    }
 }

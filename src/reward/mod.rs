@@ -21,6 +21,7 @@ mod track;
 
 pub use composer::Composer;
 pub use registry::{describe_terms, registry, ParamInfo, ParamKind, ParamValue, Params, TermInfo};
+pub(crate) use spec::nearest;
 pub use spec::{RewardSpec, TermSetting, MAX_MAGNITUDE};
 pub use track::{PathPoint, PathTrack};
 

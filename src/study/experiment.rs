@@ -576,7 +576,7 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
         };
         deep_merge(&mut merged, &over);
         let changes = diff(&base, &merged);
-        let spec = validate_variant(&name, kind, &merged, o, src, &where_)?;
+        let spec = validate_variant(&name, kind, &merged, o, src, &where_, &over)?;
         variants.push(VariantSpec {
             changes,
             grid,
@@ -626,6 +626,20 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
     })
 }
 
+/// True when the override table `over` sets the dotted key `path` (or a table above it).
+fn sets_key(over: &Table, path: &str) -> bool {
+    let mut t = over;
+    for part in path.split('.') {
+        let key = part.split('[').next().unwrap_or(part);
+        match t.get(key) {
+            None => return false,
+            Some(Value::Table(inner)) => t = inner,
+            Some(_) => return true,
+        }
+    }
+    true
+}
+
 /// Validate one merged variant table. Errors name the key as written in the base, prefixed by where the
 /// override came from when the problem is in an override.
 fn validate_variant(
@@ -635,10 +649,16 @@ fn validate_variant(
     o: &str,
     src: &str,
     where_: &str,
+    over: &Table,
 ) -> Result<VariantSpec, ConfigError> {
+    // Blame the variant only for keys it sets itself (and point at its line); a problem in the base
+    // tables is reported at the base's key, whichever variant met it first.
     let relabel = |mut e: ConfigError| {
-        if where_ != "base" {
+        if where_ != "base" && sets_key(over, &e.path) {
             e.message = format!("{} (in variant `{name}`, from {where_})", e.message);
+            if let Some(line) = crate::config::locate_line(src, &format!("{where_}.{}", e.path)) {
+                e.line = Some(line);
+            }
         }
         e
     };

@@ -1,5 +1,5 @@
-//! The results layout on disk (DESIGN.md): study.json, and per run run.json, progress.csv and terms.csv, all
-//! written atomically so an interrupted study never leaves a corrupt file.
+//! The results layout on disk (DESIGN.md): study.json, and per run run.json, evaluations.csv and
+//! term_contributions.csv, all written atomically so an interrupted study never leaves a corrupt file.
 
 use super::experiment::{Experiment, VariantKind, VariantSpec};
 use super::run::RunSpec;
@@ -122,8 +122,8 @@ pub fn write_run_json(dir: &Path, r: &RunRecord) -> Result<(), StudyError> {
 /// Remove the files of an unfinished earlier attempt (a run restarts from scratch).
 pub fn clear_run(dir: &Path) -> Result<(), StudyError> {
     for f in [
-        "progress.csv",
-        "terms.csv",
+        EVALUATIONS_FILE,
+        TERM_CONTRIBUTIONS_FILE,
         "policy.safetensors",
         "policy.json",
         "policy-best.safetensors",
@@ -137,21 +137,30 @@ pub fn clear_run(dir: &Path) -> Result<(), StudyError> {
     std::fs::create_dir_all(dir).map_err(io(dir))
 }
 
-/// The header of progress.csv.
-pub const PROGRESS_HEADER: &str = "env_steps,success_rate,mean_return,time_to_goal,collision_rate,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks,curriculum_level";
+/// Per-run table with one row per evaluation (the reader, `analysis::load`, names it the same way).
+pub const EVALUATIONS_FILE: &str = "evaluations.csv";
+/// Per-run table with one row per evaluation and one column per reward term.
+pub const TERM_CONTRIBUTIONS_FILE: &str = "term_contributions.csv";
 
-/// Write progress.csv (one row per evaluation).
-pub fn write_progress(dir: &Path, rows: &[(u64, EvalSummary, f64)]) -> Result<(), StudyError> {
-    let mut s = String::from(PROGRESS_HEADER);
+/// The header of evaluations.csv. `clean_success_rate` counts episodes that reached the goal with no
+/// contact; `reached_rate` counts those that reached it, contact allowed; `collision_rate` those with
+/// any contact; `episode_steps` is the mean episode length in control steps.
+pub const EVALUATIONS_HEADER: &str = "env_steps,clean_success_rate,reached_rate,collision_rate,mean_return,time_to_goal,episode_steps,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks,curriculum_level";
+
+/// Write evaluations.csv (one row per evaluation).
+pub fn write_evaluations(dir: &Path, rows: &[(u64, EvalSummary, f64)]) -> Result<(), StudyError> {
+    let mut s = String::from(EVALUATIONS_HEADER);
     s.push('\n');
     for (steps, e, level) in rows {
         let _ = writeln!(
             s,
-            "{steps},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+            "{steps},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
             e.success_rate,
+            e.reached_rate,
+            e.collision_rate,
             e.mean_return,
             e.time_to_goal,
-            e.collision_rate,
+            e.episode_steps,
             e.rms_joint_acc,
             e.peak_joint_acc,
             e.rms_jerk,
@@ -163,11 +172,11 @@ pub fn write_progress(dir: &Path, rows: &[(u64, EvalSummary, f64)]) -> Result<()
             level
         );
     }
-    let p = dir.join("progress.csv");
+    let p = dir.join(EVALUATIONS_FILE);
     write_atomic(&p, s.as_bytes()).map_err(io(&p))
 }
 
-/// Write terms.csv (mean per-episode contribution of each reward term, one row per evaluation).
+/// Write term_contributions.csv (mean per-episode contribution of each reward term, one row per evaluation).
 pub fn write_terms(
     dir: &Path,
     names: &[String],
@@ -186,7 +195,7 @@ pub fn write_terms(
         }
         s.push('\n');
     }
-    let p = dir.join("terms.csv");
+    let p = dir.join(TERM_CONTRIBUTIONS_FILE);
     write_atomic(&p, s.as_bytes()).map_err(io(&p))
 }
 

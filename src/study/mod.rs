@@ -317,10 +317,9 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
     let mut s = String::new();
     let _ = writeln!(
         s,
-        "study `{}`: {} variants x {} seeds",
+        "study `{}`: {}",
         exp.study.name,
-        exp.variants.len(),
-        exp.seeds()
+        plan_line(exp, runs.len())
     );
     for (i, v) in exp.variants.iter().enumerate() {
         let tag = if i == exp.reference_index() {
@@ -338,7 +337,13 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
             let _ = writeln!(s, "      (the base configuration)");
         }
         for c in &v.changes {
-            let _ = writeln!(s, "      {} = {}   (base: {})", c.key, c.value, c.base);
+            // "(unset)" means the base leaves the key at its default: say so in words.
+            let base = if c.base == "(unset)" {
+                "not set, so its default".to_string()
+            } else {
+                c.base.clone()
+            };
+            let _ = writeln!(s, "      {} = {}   (base: {base})", c.key, c.value);
         }
     }
     let _ = writeln!(s, "plan ({} runs, `--cell K` runs one):", runs.len());
@@ -354,7 +359,7 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
         .filter(|r| exp.variants[r.variant].kind == VariantKind::Learned)
         .count() as u64;
     let total = learned.saturating_mul(exp.study.budget as u64);
-    let evals = exp.study.budget as u64 / exp.eval_every() + 1;
+    let evals = evaluations_per_run(exp.study.budget as u64, exp.eval_every());
     let _ = writeln!(
         s,
         "environment steps: {} per run, {} in total; {} evaluations of {} episodes per run",
@@ -444,6 +449,40 @@ fn redraws_text(exp: &Experiment) -> String {
         .unwrap_or_else(|_| {
             format!("evaluation redraws unknown: drawing the evaluation episodes took more than {CALIBRATION_LIMIT_S} s")
         })
+}
+
+fn count(n: usize, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
+/// "3 learned variants x 5 seeds + 1 baseline controller (1 run) = 16 runs".
+pub fn plan_line(exp: &Experiment, runs: usize) -> String {
+    let learned = exp
+        .variants
+        .iter()
+        .filter(|v| v.kind == VariantKind::Learned)
+        .count();
+    let baselines = exp.variants.len() - learned;
+    let seeds = exp.seeds() as usize;
+    let mut line = format!(
+        "{} x {}",
+        count(learned, "learned variant", "learned variants"),
+        count(seeds, "seed", "seeds")
+    );
+    if baselines > 0 {
+        line.push_str(&format!(
+            " + {} (deterministic, 1 run each)",
+            count(baselines, "baseline controller", "baseline controllers")
+        ));
+    }
+    line.push_str(&format!(" = {}", count(runs, "run", "runs")));
+    line
+}
+
+/// Evaluations a learned run writes: one before training, one at every multiple of `every`
+/// below the budget, and one when the budget is reached (the runner's loop in `run.rs`).
+pub fn evaluations_per_run(budget: u64, every: u64) -> u64 {
+    1 + budget.div_ceil(every.max(1))
 }
 
 fn human_duration(s: f64) -> String {

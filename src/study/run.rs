@@ -1,6 +1,6 @@
 //! One run of a study (a variant and a seed): build the task environments, train with PPO, evaluate the
 //! deterministic policy on the study's fixed episodes every `eval_every` steps, and keep the run's folder
-//! (run.json, progress.csv, terms.csv, checkpoints) current on disk after every evaluation.
+//! (run.json, evaluations.csv, term_contributions.csv, checkpoints) current on disk after every evaluation.
 
 use super::experiment::{fnv1a_hex, Experiment, VariantKind, VariantSpec};
 use super::layout::{self, RunRecord, RunStatus};
@@ -261,7 +261,7 @@ pub fn execute(
         .collect();
     let mut rows: Vec<(u64, EvalSummary, f64)> = Vec::new();
     let save_rows = |rows: &[(u64, EvalSummary, f64)]| -> Result<(), StudyError> {
-        layout::write_progress(&spec.dir, rows)?;
+        layout::write_evaluations(&spec.dir, rows)?;
         layout::write_terms(&spec.dir, &term_names, rows)
     };
     if v.kind == VariantKind::Baseline {

@@ -245,13 +245,31 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
         let _ = writeln!(s, "  (stale: `running` but its process has died: the lock holder's process id is gone on this host, or no heartbeat for more than {stale_after_s} s)");
     }
     let rerun = st.to_rerun();
-    if !rerun.is_empty() {
+    let published = st.count(CellState::Missing) == st.cells.len()
+        && (st.dir.join("summary.csv").is_file() || st.dir.join("report.html").is_file());
+    if published {
         let _ = writeln!(
             s,
-            "to finish: run these cells again, e.g. `sbatch --array={} {}`",
-            cell_ranges(&rerun),
-            st.dir.join("slurm").join("cells.sbatch").display()
+            "no run folders here, only the study's summary and report: a published result (per-run folders are not shipped), not an unfinished study. To reproduce it, run the experiment again (its file is recorded in study.json, `config_toml`): `termwise run FILE --out {}`",
+            st.dir.display()
         );
+    } else if !rerun.is_empty() {
+        let script = st.dir.join("slurm").join("cells.sbatch");
+        if script.is_file() {
+            let _ = writeln!(
+                s,
+                "to finish: run these cells again, e.g. `sbatch --array={} {}`",
+                cell_ranges(&rerun),
+                script.display()
+            );
+        } else {
+            let _ = writeln!(
+                s,
+                "to finish: run the study again with `termwise run FILE --out {}` (finished runs are kept), or one cell at a time with `--cell K` (cells {})",
+                st.dir.display(),
+                cell_ranges(&rerun)
+            );
+        }
     }
     s
 }

@@ -481,7 +481,7 @@ pub fn run_episode(
     }
 }
 
-/// Means over a set of evaluation episodes (the columns of progress.csv and terms.csv).
+/// Means over a set of evaluation episodes (the columns of evaluations.csv and term_contributions.csv).
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct EvalSummary {
     /// Fraction of episodes with clean success (goal reached, no contact).
@@ -492,6 +492,8 @@ pub struct EvalSummary {
     /// Mean over successful episodes, s (NaN when none succeeded).
     pub time_to_goal: f64,
     pub collision_rate: f64,
+    /// Mean episode length, control steps.
+    pub episode_steps: f64,
     pub rms_joint_acc: f64,
     pub peak_joint_acc: f64,
     pub rms_jerk: f64,
@@ -520,6 +522,7 @@ impl EvalSummary {
                 succ.iter().sum::<f64>() / succ.len() as f64
             },
             collision_rate: mean(&|e| e.collided as u8 as f64),
+            episode_steps: mean(&|e| e.steps as f64),
             rms_joint_acc: mean(&|e| e.rms_acc),
             peak_joint_acc: mean(&|e| e.peak_acc),
             rms_jerk: mean(&|e| e.rms_jerk),

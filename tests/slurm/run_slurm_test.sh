@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # End-to-end check of `termwise slurm` on a real one-node Slurm cluster started on localhost: the job array
-# and the report job must produce byte-identical progress.csv/terms.csv to a local `termwise run` of the same
+# and the report job must produce byte-identical evaluations.csv/term_contributions.csv to a local `termwise run` of the same
 # experiment, and report.html. Needs root (installs Debian's slurm-wlm and munge with apt-get; skips with a
 # message if they cannot be installed). Starts munged (unless one already answers on /run/munge), slurmctld
 # and slurmd directly (no systemd), records their PIDs and stops only those at exit.
@@ -187,7 +187,7 @@ grep -q '4 done, 0 running, 0 stale, 0 diverged, 0 interrupted, 0 missing' statu
 "$TERMWISE_BIN" run tiny.toml --out local-results --jobs 2 --no-report
 fail=0
 n=0
-for f in $(cd local-results && find . -name progress.csv -o -name terms.csv | sort); do
+for f in $(cd local-results && find . -name evaluations.csv -o -name term_contributions.csv | sort); do
   n=$((n + 1))
   if ! cmp -s "local-results/$f" "slurm-results/$f"; then
     say "DIFFERS: $f"; fail=1
@@ -195,4 +195,4 @@ for f in $(cd local-results && find . -name progress.csv -o -name terms.csv | so
 done
 [ "$n" -eq 8 ] || { say "FAILED: expected 8 csv files (4 runs x progress/terms), found $n"; exit 1; }
 [ "$fail" -eq 0 ] || { say "FAILED: Slurm and local results differ"; exit 1; }
-say "PASSED: $n progress.csv/terms.csv files byte-identical between Slurm and local runs; report.html present"
+say "PASSED: $n evaluations.csv/term_contributions.csv files byte-identical between Slurm and local runs; report.html present"

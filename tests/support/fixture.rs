@@ -234,7 +234,7 @@ fn write_run(dir: &Path, spec: &Spec, seed: u64, rng: &mut ChaCha8Rng) {
             .collect(),
     };
     let speed = (0.12 * normal(rng)).exp();
-    let mut progress = String::from("env_steps,success_rate,mean_return,time_to_goal,collision_rate,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks,curriculum_level\n");
+    let mut progress = String::from("env_steps,clean_success_rate,reached_rate,collision_rate,mean_return,time_to_goal,episode_steps,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks,curriculum_level\n");
     let mut terms = format!("env_steps,{}\n", TERMS.join(","));
     for &t in &steps {
         let x = t as f64;
@@ -284,13 +284,20 @@ fn write_run(dir: &Path, spec: &Spec, seed: u64, rng: &mut ChaCha8Rng) {
             shaping,
         ];
         let ret: f64 = term_values.iter().sum();
+        // Reached (contact allowed) is at least clean success: half the episodes with contact
+        // still reach the goal. Episodes end at the goal, so they shorten as success rises.
+        let reached =
+            ((success + 0.5 * collision).min(1.0) * EPISODES as f64).round() / EPISODES as f64;
+        let episode_steps = 200.0 * (1.0 - 0.4 * success);
         let _ = writeln!(
             progress,
-            "{t},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+            "{t},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
             f(success),
+            f(reached),
+            f(collision),
             f(ret),
             f(ttg),
-            f(collision),
+            f(episode_steps),
             f(rms),
             f(3.0 * rms),
             f(20.0 * rms),
@@ -332,6 +339,6 @@ fn write_run(dir: &Path, spec: &Spec, seed: u64, rng: &mut ChaCha8Rng) {
         serde_json::to_string_pretty(&run).unwrap() + "\n",
     )
     .unwrap();
-    std::fs::write(run_dir.join("progress.csv"), progress).unwrap();
-    std::fs::write(run_dir.join("terms.csv"), terms).unwrap();
+    std::fs::write(run_dir.join("evaluations.csv"), progress).unwrap();
+    std::fs::write(run_dir.join("term_contributions.csv"), terms).unwrap();
 }
