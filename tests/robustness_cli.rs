@@ -109,8 +109,8 @@ fn assert_same_results(a: &Path, b: &Path) {
             b.join(v).join(format!("seed-{s}")),
         );
         for f in [
-            "progress.csv",
-            "terms.csv",
+            "evaluations.csv",
+            "term_contributions.csv",
             "policy.safetensors",
             "policy.json",
             "policy-best.safetensors",

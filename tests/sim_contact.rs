@@ -23,7 +23,7 @@ fn scenario(links: &[(f64, f64, f64)], control: &str, extra: &str) -> Arc<Scenar
     let zeros = vec!["0.0"; links.len()].join(", ");
     src += &format!(
         "[physics]\nintegrator = \"rk4\"\ndt = 0.001\nsubsteps = 10\nhorizon = 100000\n\
-         [workspace]\nmin = [-3.0, -3.0]\nmax = [3.0, 3.0]\n[start]\nq = [{zeros}]\n[goal]\nposition = [0.0, 0.5]\n{extra}"
+         [workspace]\nmin = [-3.0, -3.0]\nmax = [3.0, 3.0]\n[start]\nq = [{zeros}]\n[goal]\nposition = [0.0, 0.6]\n{extra}"
     );
     Arc::new(Scenario::from_toml_str(&src, "contact-test").unwrap())
 }
@@ -339,13 +339,14 @@ fn free_space_motion_is_bit_for_bit_the_same_in_both_modes() {
 #[test]
 fn solid_boundary_and_boxes_hold_too() {
     // An arm driven towards a box and the workspace wall stays within the tolerance of both.
-    let extra = "[[obstacle]]\nshape = \"box\"\ncenter = [0.0, 0.6]\nhalf = [0.15, 0.08]\n";
+    let extra = "[[obstacle]]\nshape = \"box\"\ncenter = [0.0, 0.75]\nhalf = [0.15, 0.06]\n";
     let src_ws = scenario(&[(0.5, 1.2, 0.03), (0.4, 0.8, 0.03)], "acceleration", extra);
     let mut sc = (*src_ws).clone();
     sc.workspace_min = [-0.8, -0.8];
     sc.workspace_max = [0.8, 0.8];
     let mut env = ArmEnv::new(Arc::new(sc));
-    env.reset(ArmState::at_rest(&[0.0, 0.0]), [0.0, 0.9], 0);
+    env.reset(ArmState::at_rest(&[-1.5, 1.0]), [0.0, 0.6], 0);
+    assert!(!env.last_report().collided, "the start must be free");
     let mut worst: f64 = 0.0;
     let mut touched = 0;
     for k in 0..400 {

@@ -42,6 +42,9 @@ pub const RESTING_DEPTH: f64 = 2e-4;
 /// Largest penetration left after a position correction, m (the bound the tests check).
 pub const MAX_PENETRATION: f64 = 1e-3;
 
+/// Largest joint displacement of one position-correction round, rad.
+const MAX_CORRECTION: f64 = 0.05;
+
 /// Projected Gauss-Seidel sweeps at most, and the change in impulse below which it stops.
 const PGS_SWEEPS: usize = 500;
 const PGS_TOL: f64 = 1e-13;
@@ -695,8 +698,17 @@ pub fn correct_positions(
         c[k] = ct.depth + RESTING_DEPTH;
     }
     let mu = p.solve_lcp(&c);
-    let d = p.response(&mu);
-    for i in 0..arm.n() {
+    let mut d = p.response(&mu);
+    // Near a singular configuration (a contact normal the joints can barely move along) the linearised step
+    // can be huge; take at most MAX_CORRECTION rad per round, the next round re-linearises.
+    let n = arm.n();
+    let largest = d[..n].iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    if largest > MAX_CORRECTION {
+        for x in d[..n].iter_mut() {
+            *x *= MAX_CORRECTION / largest;
+        }
+    }
+    for i in 0..n {
         q[i] += d[i];
     }
 }
