@@ -55,7 +55,8 @@ fn bench_step(c: &mut Criterion) {
 
 fn bench_pressed(c: &mut Criterion) {
     // One link pushed by a constant torque against a disc: one contact resolved in every physics step.
-    let src = "[arm]\ncontrol = \"torque\"\n[[arm.link]]\nlength = 0.6\nmass = 1.0\ntau_max = 10.0\n\
+    let src =
+        "[arm]\ncontrol = \"torque\"\n[[arm.link]]\nlength = 0.6\nmass = 1.0\ntau_max = 10.0\n\
                [start]\nq = [0.0]\n[goal]\nposition = [0.0, 0.5]\n\
                [[obstacle]]\nshape = \"disc\"\ncenter = [0.3, 0.2]\nradius = 0.08\n";
     let sc = Arc::new(Scenario::from_toml_str(src, "pressed").expect("valid scenario"));
@@ -63,10 +64,14 @@ fn bench_pressed(c: &mut Criterion) {
     for _ in 0..100 {
         env.step(&[0.7]);
     }
-    assert!(env.last_report().collided, "the bench needs the arm in contact");
-    c.bench_function("control_step_torque_rk4_10sub_pressed_against_a_disc", |b| {
-        b.iter(|| black_box(env.step(black_box(&[0.7])).min_clearance))
-    });
+    assert!(
+        env.last_report().collided,
+        "the bench needs the arm in contact"
+    );
+    c.bench_function(
+        "control_step_torque_rk4_10sub_pressed_against_a_disc",
+        |b| b.iter(|| black_box(env.step(black_box(&[0.7])).min_clearance)),
+    );
 }
 
 criterion_group!(benches, bench_step, bench_pressed);

@@ -336,7 +336,9 @@ fn ending_on_contact_charges_the_forgone_steps_so_crashing_early_does_not_pay() 
     // penalty + c * steps_left. Worked by hand: time cost 0.01 per step, horizon 300. A policy that crashes at step
     // 10 collects 10 * -0.01 - 1 - 0.01 * 290 = -4.0; one that wanders to the horizon collects 300 * -0.01 = -3.0.
     // Without the charge the crash would collect -1.1 and beat wandering.
-    let s = spec("[reward.time]\ncost = 0.01\n[reward.collision]\npenalty = 1\nremaining_cost = 0.01\n");
+    let s = spec(
+        "[reward.time]\ncost = 0.01\n[reward.collision]\npenalty = 1\nremaining_cost = 0.01\n",
+    );
     let mut c = Composer::new(&s, 0.99);
     let prev = report([0.0, 0.0], [1.0, 0.0]);
     c.reset(&prev, None);
@@ -349,7 +351,11 @@ fn ending_on_contact_charges_the_forgone_steps_so_crashing_early_does_not_pay() 
     now.collided = true;
     c.step(&prev, &now);
     assert!(c.ends_episode(&now));
-    assert!((c.episode_total() + 4.0).abs() < 1e-12, "{}", c.episode_total());
+    assert!(
+        (c.episode_total() + 4.0).abs() < 1e-12,
+        "{}",
+        c.episode_total()
+    );
     // The charge applies only when contact ends the episode.
     let s = spec("[reward.collision]\npenalty = 1\nremaining_cost = 0.01\nterminate = false\n");
     let mut c = Composer::new(&s, 0.99);

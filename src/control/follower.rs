@@ -5,9 +5,9 @@
 //! reference never cuts a corner the planner certified), each timed edge checked for collisions before use. It
 //! replans from where it is after a scenario event or when its clearance falls below half its margin.
 
+use super::profile::TimeScaling;
 use super::spec::BaselineSpec;
 use super::tracker::Tracker;
-use super::profile::TimeScaling;
 use super::trajectory::{Budget, Trajectory};
 use crate::plan::{plan_detailed, PlanSpec};
 use crate::sim::{ArmEnv, JointVec, Scenario, MAX_JOINTS};
@@ -26,7 +26,10 @@ fn timed_clearance(traj: &Trajectory, env: &ArmEnv, samples: usize) -> f64 {
     let n = env.n();
     let d = traj.duration();
     (0..=samples)
-        .map(|k| env.clearances(&traj.sample(d * k as f64 / samples as f64).q[..n]).0)
+        .map(|k| {
+            env.clearances(&traj.sample(d * k as f64 / samples as f64).q[..n])
+                .0
+        })
         .fold(f64::INFINITY, f64::min)
 }
 
@@ -103,7 +106,8 @@ impl RouteFollower {
                 self.next = 1;
                 // Fastest first: one smooth spline through every corner of the route, used only when its timed
                 // samples keep half the margin; else edge by edge, at rest in each corner.
-                self.tracker.follow_through(&self.route, &s.q[..n], &s.dq[..n], env.time());
+                self.tracker
+                    .follow_through(&self.route, &s.q[..n], &s.dq[..n], env.time());
                 let (traj, _) = self.tracker.trajectory().expect("just followed");
                 let spline_time = traj.duration();
                 let safe = timed_clearance(traj, env, 4 * EDGE_CHECKS) >= 0.5 * margin;
@@ -123,8 +127,15 @@ impl RouteFollower {
         self.route
             .windows(2)
             .map(|w| {
-                Trajectory::new(n, &w[1..], &w[0][..n], &[0.0; MAX_JOINTS][..n], self.scaling, &self.budget)
-                    .duration()
+                Trajectory::new(
+                    n,
+                    &w[1..],
+                    &w[0][..n],
+                    &[0.0; MAX_JOINTS][..n],
+                    self.scaling,
+                    &self.budget,
+                )
+                .duration()
             })
             .sum()
     }
@@ -137,9 +148,12 @@ impl RouteFollower {
         let Some(target) = self.route.get(self.next).copied() else {
             return;
         };
-        self.tracker.follow_to(&target, &s.q[..n], &s.dq[..n], env.time());
+        self.tracker
+            .follow_to(&target, &s.q[..n], &s.dq[..n], env.time());
         let (traj, _) = self.tracker.trajectory().expect("just followed");
-        if timed_clearance(traj, env, EDGE_CHECKS) < 0.0 && self.last_plan_step != Some(env.last_report().steps) {
+        if timed_clearance(traj, env, EDGE_CHECKS) < 0.0
+            && self.last_plan_step != Some(env.last_report().steps)
+        {
             self.replan(env);
         }
     }
@@ -151,7 +165,9 @@ impl RouteFollower {
         let cooled = self
             .last_plan_step
             .is_none_or(|k| r.steps >= k + REPLAN_COOLDOWN || r.steps < k);
-        if self.route.is_empty() || (cooled && r.min_clearance < 0.5 * self.clearance && !r.reached_goal) {
+        if self.route.is_empty()
+            || (cooled && r.min_clearance < 0.5 * self.clearance && !r.reached_goal)
+        {
             self.replan(env);
         } else if self
             .tracker
@@ -164,8 +180,13 @@ impl RouteFollower {
         }
         let s = env.state();
         let mut u = [0.0; MAX_JOINTS];
-        self.tracker
-            .action(&env.scenario().arm, &s.q[..n], &s.dq[..n], env.time(), &mut u);
+        self.tracker.action(
+            &env.scenario().arm,
+            &s.q[..n],
+            &s.dq[..n],
+            env.time(),
+            &mut u,
+        );
         out[..n].copy_from_slice(&u[..n]);
     }
 }

@@ -125,7 +125,7 @@ impl Tracker {
 
     /// The joint speed and acceleration budgets its references are timed with.
     pub fn budget(&self) -> Budget {
-        self.budget.clone()
+        self.budget
     }
 
     /// Start following a smooth timed spline through every point of `route` (see `Trajectory::new`).
@@ -137,7 +137,14 @@ impl Tracker {
     /// Start following the straight joint-space line from the current state to `target` (a trapezoid or quintic
     /// along it, starting from the current velocity), at episode time `t`.
     pub fn follow_to(&mut self, target: &JointVec, q: &[f64], dq: &[f64], t: f64) {
-        let traj = Trajectory::new(self.n, std::slice::from_ref(target), q, dq, self.scaling, &self.budget);
+        let traj = Trajectory::new(
+            self.n,
+            std::slice::from_ref(target),
+            q,
+            dq,
+            self.scaling,
+            &self.budget,
+        );
         self.trajectory = Some((traj, t));
     }
 
