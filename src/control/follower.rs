@@ -71,6 +71,11 @@ impl RouteFollower {
         }
     }
 
+    /// The reference the tracker follows at episode time t (None before the first plan).
+    pub fn reference(&self, t: f64) -> Option<super::trajectory::RefSample> {
+        self.tracker.reference(t)
+    }
+
     /// Forget the current route (a new episode begins).
     pub fn reset(&mut self) {
         self.route.clear();
