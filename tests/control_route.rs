@@ -61,7 +61,10 @@ fn the_controller_reaches_every_quickstart_goal_without_contact_and_within_its_c
         exp.study.eval_episodes
     );
     // The bar: clean success >= 0.97 and no episode with contact.
-    assert!(clean as f64 >= 0.97 * exp.study.eval_episodes as f64, "clean success {clean}");
+    assert!(
+        clean as f64 >= 0.97 * exp.study.eval_episodes as f64,
+        "clean success {clean}"
+    );
     assert_eq!(contact, 0);
     // The default clearance must cover the tracking deviation measured here.
     assert!(worst_dev < v.baseline.clearance, "deviation {worst_dev} m");

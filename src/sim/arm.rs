@@ -289,6 +289,12 @@ pub fn cholesky_solve(
     n: usize,
     b: &mut [f64; MAX_JOINTS],
 ) {
+    cholesky_factor(m, n);
+    cholesky_substitute(m, n, b);
+}
+
+/// Overwrite the lower triangle of the n x n block of `m` with its Cholesky factor L (M = L L^T).
+pub fn cholesky_factor(m: &mut [[f64; MAX_JOINTS]; MAX_JOINTS], n: usize) {
     for j in 0..n {
         let mut d = m[j][j];
         for k in 0..j {
@@ -304,19 +310,27 @@ pub fn cholesky_solve(
             m[i][j] = s / d;
         }
     }
+}
+
+/// Solve L L^T x = b in place (b becomes x) with a factor from `cholesky_factor`.
+pub fn cholesky_substitute(
+    l: &[[f64; MAX_JOINTS]; MAX_JOINTS],
+    n: usize,
+    b: &mut [f64; MAX_JOINTS],
+) {
     for i in 0..n {
         let mut s = b[i];
         for k in 0..i {
-            s -= m[i][k] * b[k];
+            s -= l[i][k] * b[k];
         }
-        b[i] = s / m[i][i];
+        b[i] = s / l[i][i];
     }
     for i in (0..n).rev() {
         let mut s = b[i];
         for k in i + 1..n {
-            s -= m[k][i] * b[k];
+            s -= l[k][i] * b[k];
         }
-        b[i] = s / m[i][i];
+        b[i] = s / l[i][i];
     }
 }
 

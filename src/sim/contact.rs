@@ -16,7 +16,7 @@
 //!
 //! Nothing here allocates; every buffer is a fixed-size array.
 
-use super::arm::{Arm, JointVec, Trig, MAX_JOINTS};
+use super::arm::{cholesky_factor, cholesky_substitute, Arm, JointVec, Trig, MAX_JOINTS};
 use super::geometry::{box_sdf, closest_param, Shape};
 use serde::{Deserialize, Serialize};
 
@@ -397,45 +397,6 @@ pub fn jacobian_row(pts: &[[f64; 2]; MAX_JOINTS + 1], c: &Contact) -> JointVec {
     row
 }
 
-/// Cholesky factor L (lower triangle) of the n x n block of `m`, in place.
-fn cholesky_factor(m: &mut [[f64; MAX_JOINTS]; MAX_JOINTS], n: usize) {
-    for j in 0..n {
-        let mut d = m[j][j];
-        for k in 0..j {
-            d -= m[j][k] * m[j][k];
-        }
-        let d = d.max(f64::MIN_POSITIVE).sqrt();
-        m[j][j] = d;
-        for i in j + 1..n {
-            let mut s = m[i][j];
-            for k in 0..j {
-                s -= m[i][k] * m[j][k];
-            }
-            m[i][j] = s / d;
-        }
-    }
-}
-
-/// Solve L L^T x = b with a factor from `cholesky_factor`.
-fn cholesky_apply(l: &[[f64; MAX_JOINTS]; MAX_JOINTS], n: usize, b: &JointVec) -> JointVec {
-    let mut x = *b;
-    for i in 0..n {
-        let mut s = x[i];
-        for k in 0..i {
-            s -= l[i][k] * x[k];
-        }
-        x[i] = s / l[i][i];
-    }
-    for i in (0..n).rev() {
-        let mut s = x[i];
-        for k in i + 1..n {
-            s -= l[k][i] * x[k];
-        }
-        x[i] = s / l[i][i];
-    }
-    x
-}
-
 /// The contact problem at one configuration: rows J, M^-1 J^T and the Delassus matrix A = J M^-1 J^T.
 struct Problem {
     m: usize,
@@ -458,7 +419,8 @@ impl Problem {
         };
         for (k, c) in cs.as_slice().iter().enumerate() {
             p.rows[k] = jacobian_row(pts, c);
-            p.minv_jt[k] = cholesky_apply(&mm, n, &p.rows[k]);
+            p.minv_jt[k] = p.rows[k];
+            cholesky_substitute(&mm, n, &mut p.minv_jt[k]);
         }
         for k in 0..p.m {
             for l in 0..p.m {
