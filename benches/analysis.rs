@@ -30,5 +30,11 @@ fn summarize_fixture(c: &mut Criterion) {
     });
 }
 
-criterion_group!(benches, bootstrap_iqm, summarize_fixture);
+// No criterion plots: plotters is built with the pure-Rust text path and no system fonts, on which
+// criterion's own charts cannot find a font (our charts register an embedded one).
+criterion_group! {
+    name = benches;
+    config = Criterion::default().without_plots();
+    targets = bootstrap_iqm, summarize_fixture
+}
 criterion_main!(benches);

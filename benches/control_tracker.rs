@@ -71,5 +71,11 @@ fn bench_tracker(c: &mut Criterion) {
     }
 }
 
-criterion_group!(benches, bench_tracker);
+// No criterion plots: plotters is built with the pure-Rust text path and no system fonts, on which
+// criterion's own charts cannot find a font (our charts register an embedded one).
+criterion_group! {
+    name = benches;
+    config = Criterion::default().without_plots();
+    targets = bench_tracker
+}
 criterion_main!(benches);

@@ -177,5 +177,11 @@ fn parts(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, iteration, parts);
+// No criterion plots: plotters is built with the pure-Rust text path and no system fonts, on which
+// criterion's own charts cannot find a font (our charts register an embedded one).
+criterion_group! {
+    name = benches;
+    config = Criterion::default().without_plots();
+    targets = iteration, parts
+}
 criterion_main!(benches);

@@ -126,5 +126,11 @@ fn bench_plan(c: &mut Criterion) {
     }
 }
 
-criterion_group!(benches, bench_plan);
+// No criterion plots: plotters is built with the pure-Rust text path and no system fonts, on which
+// criterion's own charts cannot find a font (our charts register an embedded one).
+criterion_group! {
+    name = benches;
+    config = Criterion::default().without_plots();
+    targets = bench_plan
+}
 criterion_main!(benches);

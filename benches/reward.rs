@@ -184,7 +184,13 @@ fn cpu() {
 #[cfg(not(target_os = "linux"))]
 fn cpu() {}
 
-criterion_group!(benches, wall);
+// No criterion plots: plotters is built with the pure-Rust text path and no system fonts, on which
+// criterion's own charts cannot find a font (our charts register an embedded one).
+criterion_group! {
+    name = benches;
+    config = Criterion::default().without_plots();
+    targets = wall
+}
 
 fn main() {
     benches();

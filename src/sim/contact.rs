@@ -293,9 +293,17 @@ pub fn detect(
     let n = arm.n();
     for (i, link) in arm.links.iter().enumerate() {
         let (a, b, r) = (pts[i], pts[i + 1], link.radius);
+        // Broad phase: the capsule's bounding disc against each shape's (squared distances, no root).
+        let mid = lerp(a, b, 0.5);
+        let reach = 0.5 * dot(sub(b, a), sub(b, a)).sqrt() + r;
         for (k, shape) in world.shapes.iter().enumerate() {
-            // Broad phase: the shape's bounding disc against the capsule.
             let centre = shape.center();
+            let gap = sub(mid, centre);
+            let limit = reach + shape.bounding_radius();
+            if dot(gap, gap) >= limit * limit {
+                continue;
+            }
+            // The shape's bounding disc against the capsule itself.
             let t0 = closest_param(centre, a, b);
             let p0 = lerp(a, b, t0);
             let d0 = sub(p0, centre);
@@ -677,28 +685,29 @@ pub fn correct_positions(
 
 /// Resolve the contacts of state (q, dq) in place: velocity impulses, then up to four rounds of position
 /// correction (re-detecting after each). Returns the generalised impulse of the velocity step and whether any
-/// contact was found. Without contact the state is untouched.
+/// contact was found. Without contact the state is untouched. `cs` is scratch space (kept by the caller so the
+/// step does not clear a fresh buffer every time).
 pub fn resolve(
     arm: &Arm,
     world: &Surroundings<'_>,
     q: &mut JointVec,
     dq: &mut JointVec,
+    cs: &mut Contacts,
 ) -> (JointVec, bool) {
     let mut pts = [[0.0; 2]; MAX_JOINTS + 1];
-    let mut cs = Contacts::default();
     arm.joint_points(q, &mut pts);
-    detect(arm, &pts, world, &mut cs);
+    detect(arm, &pts, world, cs);
     if cs.len == 0 {
         return ([0.0; MAX_JOINTS], false);
     }
-    let gen = resolve_velocities(arm, q, dq, &pts, &cs);
+    let gen = resolve_velocities(arm, q, dq, &pts, cs);
     for _ in 0..4 {
         if cs.max_penetration() <= RESTING_DEPTH * 1.5 {
             break;
         }
-        correct_positions(arm, q, &pts, &cs);
+        correct_positions(arm, q, &pts, cs);
         arm.joint_points(q, &mut pts);
-        detect(arm, &pts, world, &mut cs);
+        detect(arm, &pts, world, cs);
     }
     (gen, true)
 }

@@ -103,6 +103,8 @@ pub struct ArmEnv {
     velocities: Vec<[f64; 2]>,
     /// Current velocity of each obstacle, m/s (what a solid contact with it must match along the normal).
     shape_vels: Vec<[f64; 2]>,
+    /// Scratch space of the contact solver.
+    contacts: Box<contact::Contacts>,
     /// Sum of the generalised contact impulses J^T lambda over the last control step, N m s per joint.
     contact_impulse: JointVec,
     planned_centres: Vec<[f64; 2]>,
@@ -138,6 +140,7 @@ impl ArmEnv {
             velocities: vec![[0.0; 2]; n_obs],
             shape_vels: vec![[0.0; 2]; n_obs],
             contact_impulse: [0.0; MAX_JOINTS],
+            contacts: Box::default(),
             planned_centres: vec![[0.0; 2]; n_obs],
             active_obstacles: n_obs,
             jump_rate: sc.events.goal_jump_rate,
@@ -202,7 +205,13 @@ impl ArmEnv {
             workspace_max: self.sc.workspace_max,
             self_collision: self.sc.self_collision,
         };
-        let (gen, touched) = contact::resolve(&self.sc.arm, &world, &mut s.q, &mut s.dq);
+        let (gen, touched) = contact::resolve(
+            &self.sc.arm,
+            &world,
+            &mut s.q,
+            &mut s.dq,
+            &mut self.contacts,
+        );
         if touched {
             for (c, g) in self.contact_impulse.iter_mut().zip(gen) {
                 *c += g;
