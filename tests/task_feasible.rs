@@ -46,6 +46,9 @@ fn evaluation_episodes_all_have_a_collision_free_path_and_are_the_same_every_tim
     }
 }
 
+// No outside source decides solvability here: this is a cross-check of two independent methods (a resolution-
+// limited flood fill of the joint-space grid and the sampling planner, RRT* per Karaman & Frazzoli 2011, with a
+// generous budget), which must agree on every rejected draw.
 #[test]
 fn the_grid_rejects_only_draws_the_generous_planner_cannot_solve() {
     let (exp, ep) = quickstart_episode();

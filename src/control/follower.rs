@@ -53,10 +53,11 @@ impl RouteFollower {
     /// A follower with the baseline's gains and clearance; `plan` supplies the planner and its settings (it is
     /// given a generous, deterministic budget: ten times the iterations, at least 6000, no wall-clock limit).
     pub fn new(spec: &BaselineSpec, plan: &PlanSpec, scenario: &Scenario) -> RouteFollower {
+        let tracker = Tracker::new(spec, scenario);
         RouteFollower {
-            tracker: Tracker::new(spec, scenario),
+            budget: tracker.budget(),
+            tracker,
             scaling: spec.time_scaling,
-            budget: Tracker::new(spec, scenario).budget(),
             clearance: spec.clearance,
             plan: PlanSpec {
                 iterations: plan.iterations.saturating_mul(10).max(6000),
