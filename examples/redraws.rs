@@ -7,7 +7,7 @@
 use std::path::PathBuf;
 use std::time::Instant;
 use termwise::study::experiment;
-use termwise::study::task::{begin_eval, Episode};
+use termwise::task::{begin_eval, Episode};
 
 fn main() {
     let mut files: Vec<PathBuf> = std::env::args().skip(1).map(PathBuf::from).collect();

@@ -7,14 +7,18 @@
 
 pub mod analysis;
 pub mod chart;
+pub mod cmd;
 pub mod config;
 pub mod control;
 pub mod curriculum;
+pub mod error_chain;
 pub mod fonts;
 pub mod fsio;
 pub mod learn;
 pub mod plan;
 pub mod replay;
+pub mod results;
 pub mod reward;
 pub mod sim;
 pub mod study;
+pub mod task;

@@ -6,10 +6,10 @@
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::sync::Arc;
-use termwise::control::metrics::trajectory_metrics;
 use termwise::control::{BaselineSpec, TimeScaling, Tracker};
 use termwise::plan::ReferencePath;
 use termwise::sim::{ArmEnv, ArmState, JointVec, Scenario, MAX_JOINTS};
+use termwise::task::trajectory::trajectory_metrics;
 
 fn scenario(file: &str, edits: &[(&str, &str)]) -> Arc<Scenario> {
     let path = format!(

@@ -6,7 +6,7 @@ use std::path::Path;
 use termwise::control::RouteFollower;
 use termwise::sim::MAX_JOINTS;
 use termwise::study::experiment;
-use termwise::study::task::{begin_eval, Episode};
+use termwise::task::{begin_eval, Episode};
 
 #[test]
 fn the_controller_reaches_every_quickstart_goal_without_contact_and_within_its_clearance() {

@@ -8,7 +8,7 @@ use termwise::curriculum::full_task_draw;
 use termwise::plan::connectivity::ConnectivityGrid;
 use termwise::plan::plan_path;
 use termwise::study::experiment;
-use termwise::study::task::{begin_eval, feasibility_spec, Episode};
+use termwise::task::{begin_eval, feasibility_spec, Episode};
 
 fn quickstart_episode() -> (experiment::Experiment, Episode) {
     let exp = experiment::load(Path::new("experiments/quickstart.toml")).unwrap();

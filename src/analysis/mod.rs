@@ -1,4 +1,4 @@
-//! `analysis`: statistics over runs and seeds — reads a results folder, computes per-run figures,
+//! `analysis`: statistics over runs and seeds — reads a results folder (through `results`, never `study`), computes per-run figures,
 //! across-seed IQM and mean with stratified bootstrap confidence intervals, and comparisons against
 //! the reference variant (Agarwal et al., "Deep RL at the Edge of the Statistical Precipice",
 //! NeurIPS 2021). Knows nothing about plotting.
@@ -10,12 +10,10 @@ pub mod run_metrics;
 pub mod stats;
 pub mod summary;
 
+pub use crate::results::{EvalRow, RunStatus, StudyRecord, VariantKind, VariantRecord};
 pub use bootstrap::{BootstrapSpec, Estimate};
 pub use compare::{MannWhitney, PValueMethod};
-pub use load::{
-    load_study, ConfigChange, EvalRow, RunRecord, RunStatus, StudyInfo, StudyResults, VariantInfo,
-    VariantKind, VariantRuns,
-};
+pub use load::{load_study, RunResults, StudyResults, VariantRuns};
 pub use run_metrics::{RunMetrics, Threshold};
 pub use summary::{
     summarize, verdict, Aggregate, AnalysisOptions, Comparison, CrashFlag, Curve, CurveMetric,
@@ -46,59 +44,7 @@ pub enum AnalysisError {
         /// The name given.
         name: String,
     },
-    /// A file could not be read.
-    #[error("cannot read {path}")]
-    Io {
-        /// File.
-        path: PathBuf,
-        /// Cause.
-        #[source]
-        source: std::io::Error,
-    },
-    /// A JSON file is malformed.
-    #[error("malformed JSON in {path}")]
-    Json {
-        /// File.
-        path: PathBuf,
-        /// Cause.
-        #[source]
-        source: serde_json::Error,
-    },
-    /// A CSV file is malformed.
-    #[error("malformed CSV in {path}")]
-    Csv {
-        /// File.
-        path: PathBuf,
-        /// Cause.
-        #[source]
-        source: csv::Error,
-    },
-    /// A CSV header differs from the results layout.
-    #[error("{path}: header must be '{expected}', found '{found}'")]
-    BadHeader {
-        /// File.
-        path: PathBuf,
-        /// Header the contract requires.
-        expected: String,
-        /// Header found.
-        found: String,
-    },
-    /// A CSV cell is not a number.
-    #[error("{path}: '{text}' is not a number")]
-    BadNumber {
-        /// File.
-        path: PathBuf,
-        /// Offending text.
-        text: String,
-    },
-    /// run.json has a status outside done | diverged | interrupted | running.
-    #[error(
-        "{path}: unknown run status '{status}' (expected done, diverged, interrupted or running)"
-    )]
-    BadStatus {
-        /// File.
-        path: PathBuf,
-        /// Status found.
-        status: String,
-    },
+    /// A results file could not be read or is malformed.
+    #[error(transparent)]
+    Results(#[from] crate::results::ResultsError),
 }

@@ -1,8 +1,9 @@
 //! Figures of one run: area under the success curve, steps to the success threshold (censored when
 //! never reached), and final performance and motion quality over the last evaluations.
 
-use super::load::{EvalRow, RunRecord, RunStatus, VariantKind};
+use super::load::RunResults;
 use super::stats::{finite, mean};
+use crate::results::{EvalRow, RunStatus, VariantKind};
 
 /// Steps to reach the study's success threshold.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
@@ -93,7 +94,7 @@ pub struct RunContext {
 /// - interrupted / running / missing: unfinished, so AUC and final figures are undefined; a threshold
 ///   already reached counts, otherwise it is pending.
 /// - baseline: one evaluation; final figures from it, AUC and threshold not applicable.
-pub fn run_metrics(run: &RunRecord, ctx: &RunContext) -> RunMetrics {
+pub fn run_metrics(run: &RunResults, ctx: &RunContext) -> RunMetrics {
     let rows = &run.progress;
     let mut m = RunMetrics {
         seed: run.seed,
@@ -223,13 +224,14 @@ mod tests {
         }
     }
 
-    fn run(status: RunStatus, rows: Vec<EvalRow>) -> RunRecord {
-        RunRecord {
+    fn run(status: RunStatus, rows: Vec<EvalRow>) -> RunResults {
+        RunResults {
             seed: 0,
             status,
             meta: None,
             progress: rows,
             terms: Default::default(),
+            training: Vec::new(),
         }
     }
 

@@ -7,9 +7,10 @@ use super::bootstrap::{
     Estimate,
 };
 use super::compare::{mann_whitney, normal_quantile, probability_of_improvement, MannWhitney};
-use super::load::{RunStatus, StudyInfo, StudyResults, VariantInfo, VariantKind, VariantRuns};
+use super::load::{StudyResults, VariantRuns};
 use super::run_metrics::{run_metrics, RunContext, RunMetrics, Threshold};
 use super::stats::{finite, iqm, mean, sample_std, wilson_interval};
+use crate::results::{EvalRow, RunStatus, StudyRecord, VariantKind, VariantRecord};
 use std::collections::BTreeMap;
 
 /// Analysis settings.
@@ -158,7 +159,7 @@ impl CurveMetric {
     ];
 
     /// Value of this metric in a progress row.
-    pub fn of(self, r: &super::load::EvalRow) -> f64 {
+    pub fn of(self, r: &EvalRow) -> f64 {
         match self {
             CurveMetric::Success => r.success_rate,
             CurveMetric::Return => r.mean_return,
@@ -180,7 +181,7 @@ pub struct SeedCurve {
     /// Run status.
     pub status: RunStatus,
     /// evaluations.csv rows.
-    pub rows: Vec<super::load::EvalRow>,
+    pub rows: Vec<EvalRow>,
 }
 
 /// Mean per-episode contribution of one reward term over training (mean across seeds).
@@ -302,7 +303,7 @@ pub enum Verdict {
 #[derive(Debug, Clone, PartialEq)]
 pub struct VariantSummary {
     /// Declaration from study.json.
-    pub info: VariantInfo,
+    pub info: VariantRecord,
     /// Position in study.json (fixes the colour).
     pub index: usize,
     /// Run status counts.
@@ -378,7 +379,7 @@ pub struct SeedsNeeded {
 #[derive(Debug, Clone, PartialEq)]
 pub struct StudySummary {
     /// study.json.
-    pub study: StudyInfo,
+    pub study: StudyRecord,
     /// Name of the reference variant.
     pub reference: String,
     /// Options used.
@@ -471,10 +472,11 @@ const TAG_GROUP_SUCCESS: u64 = 41;
 /// Summarise a loaded study.
 pub fn summarize(results: &StudyResults, opts: &AnalysisOptions) -> StudySummary {
     let study = &results.study;
-    let reference = study
-        .reference_variant
-        .clone()
-        .unwrap_or_else(|| study.variants[0].name.clone());
+    let reference = if study.reference_variant.is_empty() {
+        study.variants[0].name.clone()
+    } else {
+        study.reference_variant.clone()
+    };
     let mut variants: Vec<VariantSummary> = results
         .variants
         .iter()
@@ -659,13 +661,13 @@ pub fn verdict(learned: &Estimate, baseline: &Estimate, higher_better: bool) -> 
 fn summarize_variant(
     index: usize,
     v: &VariantRuns,
-    study: &StudyInfo,
+    study: &StudyRecord,
     opts: &AnalysisOptions,
 ) -> VariantSummary {
     let ctx = RunContext {
         budget_steps: study.budget_steps,
         success_threshold: study.success_threshold,
-        final_window: study.final_window,
+        final_window: study.final_window as usize,
         kind: v.info.kind,
     };
     let mut status = StatusCounts::default();
@@ -689,8 +691,8 @@ fn summarize_variant(
         })
         .collect();
     let agg = |k: u64, f: fn(&RunMetrics) -> Option<f64>| aggregate(index, k, &runs, f, opts);
-    let gaming = gaming_check(&curves, study.final_window, opts);
-    let crashing = crash_check(&curves, study.final_window, opts);
+    let gaming = gaming_check(&curves, study.final_window as usize, opts);
+    let crashing = crash_check(&curves, study.final_window as usize, opts);
     let mut final_success = agg(11, |m| m.final_success);
     let mut final_reached = agg(20, |m| m.final_reached);
     let mut final_collision = agg(21, |m| m.final_collision);

@@ -78,11 +78,10 @@ pub fn curriculum_variants(s: &StudySummary) -> Vec<usize> {
         .iter()
         .filter(|v| v.info.kind == VariantKind::Learned)
         .filter(|v| {
-            let named = v
-                .info
-                .curriculum
-                .as_deref()
-                .is_some_and(|c| !matches!(c, "" | "none" | "uniform" | "fixed"));
+            let named = !matches!(
+                v.info.curriculum.as_str(),
+                "" | "none" | "uniform" | "fixed"
+            );
             let pts = &v.curves[&CurveMetric::CurriculumLevel].points;
             let varies = pts
                 .iter()

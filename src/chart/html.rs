@@ -685,7 +685,11 @@ fn changes(h: &mut String, s: &StudySummary) {
                 VariantKind::Baseline => "baseline",
             },
             c,
-            esc(v.info.curriculum.as_deref().unwrap_or("—"))
+            esc(if v.info.curriculum.is_empty() {
+                "—"
+            } else {
+                &v.info.curriculum
+            })
         );
     }
     h.push_str("</table>");

@@ -1,6 +1,7 @@
 //! `control`: the classical baseline that learned policies are compared with — joint-space tracking of the
 //! reference path (PD on acceleration, or computed torque), with trapezoidal or quintic time-scaling under the
-//! joint limits, replanning from a moving state, and trajectory-quality metrics. Knows nothing about learning.
+//! joint limits, replanning from a moving state (its trajectory-quality metrics are `task::trajectory`). Knows nothing about
+//! learning.
 //!
 //! ```no_run
 //! # use termwise::control::{BaselineSpec, Tracker};
@@ -20,14 +21,12 @@
 //! ```
 
 pub mod follower;
-pub mod metrics;
 pub mod profile;
 pub mod spec;
 pub mod tracker;
 pub mod trajectory;
 
 pub use follower::RouteFollower;
-pub use metrics::{trajectory_metrics, TrajectoryMetrics};
 pub use profile::{Profile, TimeScaling};
 pub use spec::{BaselineSpec, Gains};
 pub use tracker::{computed_torque, feedback_acceleration, Tracker};

@@ -1,10 +1,57 @@
 //! `along-path`: with probability p an episode starts at rest on a random waypoint of its reference path, so
 //! the policy sees states near the goal early; p is constant or decays linearly with environment steps.
 
-use super::{full_task_draw, Curriculum, EpisodeDraw};
+use super::{
+    build_from, check_unit, default_params, full_task_draw, Curriculum, CurriculumInfo,
+    CurriculumParams, EpisodeDraw, ParamError,
+};
 use crate::sim::ArmEnv;
 use rand::Rng;
 use rand_chacha::ChaCha8Rng;
+use serde::{Deserialize, Serialize};
+
+/// Registry entry.
+pub const INFO: CurriculumInfo = CurriculumInfo {
+    name: "along-path",
+    meaning: "with probability p start at rest on a random waypoint of the reference path; p constant or decaying",
+    params: &[
+        ("path_start_probability", "p at step 0"),
+        ("decay_steps", "env steps for p to decay linearly to 0 (0 = constant)"),
+    ],
+    defaults: default_params::<AlongPathParams>,
+    build: build_from::<AlongPathParams>,
+};
+
+/// Parameters of `along-path`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct AlongPathParams {
+    /// Probability of starting on the reference path at step 0, in [0, 1]. Default 0.5.
+    pub path_start_probability: f64,
+    /// Environment steps over which that probability decays linearly to 0; 0 = constant. Default 0.
+    pub decay_steps: u64,
+}
+
+impl Default for AlongPathParams {
+    fn default() -> Self {
+        AlongPathParams {
+            path_start_probability: 0.5,
+            decay_steps: 0,
+        }
+    }
+}
+
+impl CurriculumParams for AlongPathParams {
+    fn validate(&self) -> Result<(), ParamError> {
+        check_unit("path_start_probability", self.path_start_probability)
+    }
+    fn build(self) -> Box<dyn Curriculum> {
+        Box::new(AlongPath::new(
+            self.path_start_probability,
+            self.decay_steps,
+        ))
+    }
+}
 
 /// Starts on the reference path with a scheduled probability.
 #[derive(Clone, Debug)]

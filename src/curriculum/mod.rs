@@ -1,5 +1,6 @@
 //! `curriculum`: reset curricula that decide each training episode's start state, goal and difficulty, with
-//! feedback from episode outcomes. A new curriculum is one file plus one line in `REGISTRY`.
+//! feedback from episode outcomes. A new curriculum is one file (the curriculum, its params struct with serde,
+//! `Default` and `validate`, and its `INFO`) plus its `mod` line and one line in `REGISTRY`.
 
 mod along_path;
 mod reverse;
@@ -98,29 +99,16 @@ pub const MAX_WINDOW: usize = 100_000;
 /// Most stages of the `staged` curriculum.
 pub const MAX_STAGES: usize = 100;
 
-/// The `[curriculum]` table: `kind` plus the parameters of that kind (others are rejected).
+/// The `[curriculum]` table: `kind` plus the parameters of that kind, which its own params struct reads
+/// (`validate` checks them; keys of another curriculum are rejected).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
 pub struct CurriculumSpec {
-    /// Which curriculum: `uniform`, `along-path`, `reverse` or `staged`. Default `uniform`.
+    /// Which curriculum (a name in `REGISTRY`). Default `uniform`.
     #[serde(default = "default_kind")]
     pub kind: String,
-    /// along-path: probability of starting on the reference path at step 0. Default 0.5.
-    pub path_start_probability: Option<f64>,
-    /// along-path: environment steps over which that probability decays linearly to 0; 0 = constant. Default 0.
-    pub decay_steps: Option<u64>,
-    /// reverse: initial joint-space radius around the goal configuration, rad. Default 0.3.
-    pub start_radius: Option<f64>,
-    /// reverse: radius added each time the recent success rate passes the threshold, rad. Default 0.3.
-    pub radius_step: Option<f64>,
-    /// reverse: largest radius, rad (then starts are uniform). Default 3.0.
-    pub max_radius: Option<f64>,
-    /// reverse, staged: recent success rate that widens the radius / advances the stage. Default 0.7.
-    pub success_threshold: Option<f64>,
-    /// reverse, staged: number of recent episodes in the success rate. Default 40.
-    pub window: Option<usize>,
-    /// staged: the stages, easiest first.
-    pub stages: Option<Vec<Stage>>,
+    /// The kind's parameters as written (absent ones take the params struct's `Default`).
+    #[serde(flatten)]
+    pub params: toml::Table,
 }
 
 fn default_kind() -> String {
@@ -131,117 +119,163 @@ impl Default for CurriculumSpec {
     fn default() -> Self {
         CurriculumSpec {
             kind: default_kind(),
-            path_start_probability: None,
-            decay_steps: None,
-            start_radius: None,
-            radius_step: None,
-            max_radius: None,
-            success_threshold: None,
-            window: None,
-            stages: None,
+            params: toml::Table::new(),
         }
     }
 }
 
-/// One registered curriculum: its TOML name, meaning and parameters (name, default, meaning).
-pub struct CurriculumInfo {
-    pub name: &'static str,
-    pub meaning: &'static str,
-    pub params: &'static [(&'static str, &'static str, &'static str)],
-    build: fn(&CurriculumSpec) -> Box<dyn Curriculum>,
+/// A broken parameter: the key (relative to the `[curriculum]` table) and what to change.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ParamError {
+    pub key: String,
+    pub message: String,
 }
 
-/// Every built-in curriculum.
-pub const REGISTRY: &[CurriculumInfo] = &[
-    CurriculumInfo {
-        name: "uniform",
-        meaning: "start and goal drawn uniformly from the scenario's joint limits and reachable, collision-free goals",
-        params: &[],
-        build: |_| Box::new(Uniform),
-    },
-    CurriculumInfo {
-        name: "along-path",
-        meaning: "with probability p start at rest on a random waypoint of the reference path; p constant or decaying",
-        params: &[
-            ("path_start_probability", "0.5", "p at step 0"),
-            ("decay_steps", "0", "env steps for p to decay linearly to 0 (0 = constant)"),
-        ],
-        build: |s| Box::new(AlongPath::new(s.path_start_probability.unwrap_or(0.5), s.decay_steps.unwrap_or(0))),
-    },
-    CurriculumInfo {
-        name: "reverse",
-        meaning: "starts within a joint-space radius of the goal configuration, widening when recent success passes a threshold (Florensa et al. 2017)",
-        params: &[
-            ("start_radius", "0.3", "initial radius, rad"),
-            ("radius_step", "0.3", "radius added per widening, rad"),
-            ("max_radius", "3.0", "largest radius, rad"),
-            ("success_threshold", "0.7", "recent success rate that widens the radius"),
-            ("window", "40", "episodes in the recent success rate"),
-        ],
-        build: |s| {
-            Box::new(Reverse::new(
-                s.start_radius.unwrap_or(0.3),
-                s.radius_step.unwrap_or(0.3),
-                s.max_radius.unwrap_or(3.0),
-                s.success_threshold.unwrap_or(0.7),
-                s.window.unwrap_or(40),
-            ))
-        },
-    },
-    CurriculumInfo {
-        name: "staged",
-        meaning: "difficulty stages (obstacle count, goal distance, goal-jump rate) advanced when recent success passes a threshold",
-        params: &[
-            ("stages", "3 stages", "list of {obstacles, goal_distance (m), jump_rate (1/s)}, easiest first"),
-            ("success_threshold", "0.7", "recent success rate that advances a stage"),
-            ("window", "40", "episodes in the recent success rate"),
-        ],
-        build: |s| {
-            Box::new(Staged::new(
-                s.stages.clone().unwrap_or_else(Staged::default_stages),
-                s.success_threshold.unwrap_or(0.7),
-                s.window.unwrap_or(40),
-            ))
-        },
-    },
-];
+impl ParamError {
+    pub fn new(key: impl Into<String>, message: impl Into<String>) -> ParamError {
+        ParamError {
+            key: key.into(),
+            message: message.into(),
+        }
+    }
+}
+
+/// The parameters of one curriculum: a serde struct whose `Default` holds the documented defaults, a
+/// `validate` step, and the curriculum it builds.
+pub trait CurriculumParams: Serialize + serde::de::DeserializeOwned + Default {
+    /// Check the values; the error names the key.
+    fn validate(&self) -> Result<(), ParamError>;
+    /// The curriculum these parameters describe (validated first).
+    fn build(self) -> Box<dyn Curriculum>;
+}
+
+/// Read a params struct from the parameters of a `[curriculum]` table and validate it.
+pub fn read_params<P: CurriculumParams>(table: &toml::Table) -> Result<P, ParamError> {
+    let p: P =
+        serde_path_to_error::deserialize(toml::Value::Table(table.clone())).map_err(|e| {
+            let path = e.path().to_string();
+            let message = crate::config::plain_words(e.inner().message().trim());
+            ParamError::new(if path == "." { String::new() } else { path }, message)
+        })?;
+    p.validate()?;
+    Ok(p)
+}
+
+/// A params struct's defaults as JSON (JSON rather than TOML: it holds every unsigned integer).
+pub fn default_params<P: CurriculumParams>() -> serde_json::Value {
+    serde_json::to_value(P::default()).unwrap_or(serde_json::Value::Null)
+}
+
+/// Read, validate and build a curriculum from its parameters.
+pub fn build_from<P: CurriculumParams>(
+    table: &toml::Table,
+) -> Result<Box<dyn Curriculum>, ParamError> {
+    read_params::<P>(table).map(P::build)
+}
+
+/// One registered curriculum. The defaults live once, in its params struct's `Default`.
+pub struct CurriculumInfo {
+    /// The TOML name (`[curriculum] kind`).
+    pub name: &'static str,
+    /// One-line meaning.
+    pub meaning: &'static str,
+    /// Each parameter's name and meaning (with unit), in listing order.
+    pub params: &'static [(&'static str, &'static str)],
+    /// The params struct's defaults (`default_params::<P>`).
+    pub defaults: fn() -> serde_json::Value,
+    /// Read, validate and build (`build_from::<P>`).
+    pub build: fn(&toml::Table) -> Result<Box<dyn Curriculum>, ParamError>,
+}
+
+/// Every built-in curriculum: one line each.
+pub const REGISTRY: &[CurriculumInfo] =
+    &[uniform::INFO, along_path::INFO, reverse::INFO, staged::INFO];
+
+/// The registered curriculum called `name`.
+pub fn find(name: &str) -> Option<&'static CurriculumInfo> {
+    REGISTRY.iter().find(|c| c.name == name)
+}
+
+/// A default value as the listing shows it.
+fn shown(v: Option<&serde_json::Value>) -> String {
+    match v {
+        Some(serde_json::Value::Array(a)) => format!("{} entries", a.len()),
+        Some(v) => v.to_string(),
+        None => "-".into(),
+    }
+}
+
+/// The listing of `termwise curricula`: every registered curriculum with its parameters.
+pub fn describe_curricula() -> String {
+    use std::fmt::Write as _;
+    let mut s = String::from(
+        "Reset curricula. Pick one with [curriculum] kind = \"<name>\" in the experiment file and set its\n\
+         parameters in the same table (a key of another curriculum is an error).\n\n",
+    );
+    for c in REGISTRY {
+        let _ = writeln!(s, "{}  {}", c.name, c.meaning);
+        if c.params.is_empty() {
+            let _ = writeln!(s, "  (no parameters)");
+        } else {
+            let defaults = (c.defaults)();
+            let _ = writeln!(s, "  {:<24} {:<10} meaning", "parameter", "default");
+            for (name, meaning) in c.params {
+                let d = shown(defaults.get(name));
+                let _ = writeln!(s, "  {name:<24} {d:<10} {meaning}");
+            }
+        }
+        s.push('\n');
+    }
+    s
+}
+
+/// Check a unit-interval parameter.
+pub fn check_unit(key: &str, x: f64) -> Result<(), ParamError> {
+    if (0.0..=1.0).contains(&x) {
+        Ok(())
+    } else {
+        Err(ParamError::new(key, format!("must be in [0, 1], got {x}")))
+    }
+}
+
+/// Check a success-window length.
+pub fn check_window(w: usize) -> Result<(), ParamError> {
+    if w == 0 || w > MAX_WINDOW {
+        return Err(ParamError::new(
+            "window",
+            format!("must be in 1..={MAX_WINDOW} episodes, got {w}"),
+        ));
+    }
+    Ok(())
+}
 
 impl CurriculumSpec {
     /// Check the kind and its parameters; `prefix` is the key path of the table (e.g. `curriculum`).
     pub fn validate(&self, origin: &str, src: &str, prefix: &str) -> Result<(), ConfigError> {
-        let err = |k: &str, m: String| ConfigError::at(origin, src, &format!("{prefix}.{k}"), m);
-        let info = REGISTRY
-            .iter()
-            .find(|c| c.name == self.kind)
-            .ok_or_else(|| {
-                let names: Vec<_> = REGISTRY.iter().map(|c| c.name).collect();
-                let hint = crate::reward::nearest(&self.kind, &names)
-                    .map(|n| format!(" (did you mean `{n}`?)"))
-                    .unwrap_or_default();
-                err(
-                    "kind",
-                    format!(
-                        "unknown curriculum `{}`{hint}; known: {}",
-                        self.kind,
-                        names.join(", ")
-                    ),
-                )
-            })?;
-        let given: [(&str, bool); 8] = [
-            (
-                "path_start_probability",
-                self.path_start_probability.is_some(),
-            ),
-            ("decay_steps", self.decay_steps.is_some()),
-            ("start_radius", self.start_radius.is_some()),
-            ("radius_step", self.radius_step.is_some()),
-            ("max_radius", self.max_radius.is_some()),
-            ("success_threshold", self.success_threshold.is_some()),
-            ("window", self.window.is_some()),
-            ("stages", self.stages.is_some()),
-        ];
-        for (k, set) in given {
-            if set && !info.params.iter().any(|p| p.0 == k) {
+        let err = |k: &str, m: String| {
+            let path = if k.is_empty() {
+                prefix.to_string()
+            } else {
+                format!("{prefix}.{k}")
+            };
+            ConfigError::at(origin, src, &path, m)
+        };
+        let info = find(&self.kind).ok_or_else(|| {
+            let names: Vec<_> = REGISTRY.iter().map(|c| c.name).collect();
+            let hint = crate::reward::nearest(&self.kind, &names)
+                .map(|n| format!(" (did you mean `{n}`?)"))
+                .unwrap_or_default();
+            err(
+                "kind",
+                format!(
+                    "unknown curriculum `{}`{hint}; known: {}",
+                    self.kind,
+                    names.join(", ")
+                ),
+            )
+        })?;
+        for k in self.params.keys() {
+            if !info.params.iter().any(|p| p.0 == k) {
                 let allowed: Vec<_> = info.params.iter().map(|p| p.0).collect();
                 return Err(err(
                     k,
@@ -257,82 +291,25 @@ impl CurriculumSpec {
                 ));
             }
         }
-        let unit = |k: &str, v: Option<f64>| -> Result<(), ConfigError> {
-            match v {
-                Some(x) if !(0.0..=1.0).contains(&x) || x.is_nan() => {
-                    Err(err(k, format!("must be in [0, 1], got {x}")))
-                }
-                _ => Ok(()),
-            }
-        };
-        unit("path_start_probability", self.path_start_probability)?;
-        unit("success_threshold", self.success_threshold)?;
-        for (k, v) in [
-            ("start_radius", self.start_radius),
-            ("radius_step", self.radius_step),
-            ("max_radius", self.max_radius),
-        ] {
-            if let Some(x) = v {
-                if !(x.is_finite() && x > 0.0) {
-                    return Err(err(
-                        k,
-                        format!("must be a finite number > 0 (rad), got {x}"),
-                    ));
-                }
-            }
-        }
-        if let (Some(a), Some(b)) = (self.start_radius, self.max_radius) {
-            if a > b {
-                return Err(err(
-                    "start_radius",
-                    format!("start_radius ({a}) must be <= max_radius ({b})"),
-                ));
-            }
-        }
-        if let Some(w) = self.window {
-            if w == 0 || w > MAX_WINDOW {
-                return Err(err(
-                    "window",
-                    format!("must be in 1..={MAX_WINDOW} episodes, got {w}"),
-                ));
-            }
-        }
-        if let Some(stages) = &self.stages {
-            if stages.is_empty() || stages.len() > MAX_STAGES {
-                return Err(err(
-                    "stages",
-                    format!("needs 1 to {MAX_STAGES} stages, got {}", stages.len()),
-                ));
-            }
-            for (i, s) in stages.iter().enumerate() {
-                if !(s.goal_distance.is_finite() && s.goal_distance > 0.0) {
-                    return Err(err(
-                        &format!("stages[{i}].goal_distance"),
-                        format!("must be > 0 m, got {}", s.goal_distance),
-                    ));
-                }
-                let max_rate = crate::sim::scenario::MAX_GOAL_JUMP_RATE;
-                if !(s.jump_rate.is_finite() && (0.0..=max_rate).contains(&s.jump_rate)) {
-                    return Err(err(
-                        &format!("stages[{i}].jump_rate"),
-                        format!(
-                            "must be in [0, {max_rate}] jumps per second, got {}",
-                            crate::config::num(s.jump_rate)
-                        ),
-                    ));
-                }
-            }
-        }
-        Ok(())
+        (info.build)(&self.params)
+            .map(|_| ())
+            .map_err(|e| err(&e.key, e.message))
     }
 
-    /// Build the curriculum (call `validate` first).
+    /// Build the curriculum (call `validate` first; an invalid spec falls back to `uniform` with an error
+    /// logged, which `validate` rules out).
     pub fn build(&self) -> Box<dyn Curriculum> {
-        let info = REGISTRY
-            .iter()
-            .find(|c| c.name == self.kind)
-            .expect("validated curriculum kind");
-        (info.build)(self)
+        match find(&self.kind).map(|info| (info.build)(&self.params)) {
+            Some(Ok(c)) => c,
+            _ => {
+                tracing::error!(
+                    "curriculum `{}` with {:?} did not validate; using uniform",
+                    self.kind,
+                    self.params
+                );
+                Box::new(Uniform)
+            }
+        }
     }
 }
 
@@ -342,11 +319,11 @@ mod tests {
 
     #[test]
     fn validation_rejects_foreign_and_bad_keys() {
-        let mut s = CurriculumSpec {
-            kind: "uniform".into(),
-            start_radius: Some(0.5),
-            ..Default::default()
+        let with = |kind: &str, key: &str, v: toml::Value| CurriculumSpec {
+            kind: kind.into(),
+            params: [(key.to_string(), v)].into_iter().collect(),
         };
+        let mut s = with("uniform", "start_radius", toml::Value::Float(0.5));
         let e = s
             .validate("x.toml", "", "curriculum")
             .unwrap_err()
@@ -367,18 +344,39 @@ mod tests {
             e.contains("known: uniform, along-path, reverse, staged"),
             "{e}"
         );
-        s = CurriculumSpec {
-            kind: "along-path".into(),
-            path_start_probability: Some(1.5),
-            ..Default::default()
-        };
-        assert!(s.validate("x.toml", "", "curriculum").is_err());
-        s = CurriculumSpec {
-            kind: "reverse".into(),
-            start_radius: Some(0.2),
-            ..Default::default()
-        };
+        s = with(
+            "along-path",
+            "path_start_probability",
+            toml::Value::Float(1.5),
+        );
+        let e = s.validate("x.toml", "", "curriculum").unwrap_err();
+        assert_eq!(e.path, "curriculum.path_start_probability", "{e}");
+        s = with("reverse", "start_radius", toml::Value::Float(0.2));
         assert!(s.validate("x.toml", "", "curriculum").is_ok());
+        s = with("reverse", "window", toml::Value::String("forty".into()));
+        let e = s.validate("x.toml", "", "curriculum").unwrap_err();
+        assert_eq!(e.path, "curriculum.window", "{e}");
+    }
+
+    #[test]
+    fn every_listed_parameter_has_a_default_and_every_default_is_listed() {
+        for c in REGISTRY {
+            let d = (c.defaults)();
+            let keys: Vec<&str> = d
+                .as_object()
+                .map(|o| o.keys().map(String::as_str).collect())
+                .unwrap_or_default();
+            let mut listed: Vec<&str> = c.params.iter().map(|p| p.0).collect();
+            let mut keys = keys;
+            keys.sort();
+            listed.sort();
+            assert_eq!(keys, listed, "{}", c.name);
+        }
+        let text = describe_curricula();
+        assert!(
+            text.contains("along-path") && text.contains("path_start_probability   0.5"),
+            "{text}"
+        );
     }
 
     #[test]

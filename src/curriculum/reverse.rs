@@ -3,10 +3,94 @@
 //! (after Florensa, Held, Wulfmeier, Zhang, Abbeel, "Reverse Curriculum Generation for Reinforcement
 //! Learning", CoRL 2017, simplified to a growing ball instead of random-walk expansion).
 
-use super::{Curriculum, EpisodeDraw, SuccessWindow};
+use super::{
+    build_from, check_unit, check_window, default_params, Curriculum, CurriculumInfo,
+    CurriculumParams, EpisodeDraw, ParamError, SuccessWindow,
+};
 use crate::sim::{ArmEnv, ArmState, MAX_JOINTS};
 use rand::Rng;
 use rand_chacha::ChaCha8Rng;
+use serde::{Deserialize, Serialize};
+
+/// Registry entry.
+pub const INFO: CurriculumInfo = CurriculumInfo {
+    name: "reverse",
+    meaning: "starts within a joint-space radius of the goal configuration, widening when recent success passes a threshold (Florensa et al. 2017)",
+    params: &[
+        ("start_radius", "initial radius, rad"),
+        ("radius_step", "radius added per widening, rad"),
+        ("max_radius", "largest radius, rad"),
+        ("success_threshold", "recent success rate that widens the radius"),
+        ("window", "episodes in the recent success rate"),
+    ],
+    defaults: default_params::<ReverseParams>,
+    build: build_from::<ReverseParams>,
+};
+
+/// Parameters of `reverse`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ReverseParams {
+    /// Initial joint-space radius around the goal configuration, rad. Default 0.3.
+    pub start_radius: f64,
+    /// Radius added each time the recent success rate passes the threshold, rad. Default 0.3.
+    pub radius_step: f64,
+    /// Largest radius, rad (then starts are uniform in the ball). Default 3.0.
+    pub max_radius: f64,
+    /// Recent success rate that widens the radius, in [0, 1]. Default 0.7.
+    pub success_threshold: f64,
+    /// Episodes in the recent success rate. Default 40.
+    pub window: usize,
+}
+
+impl Default for ReverseParams {
+    fn default() -> Self {
+        ReverseParams {
+            start_radius: 0.3,
+            radius_step: 0.3,
+            max_radius: 3.0,
+            success_threshold: 0.7,
+            window: 40,
+        }
+    }
+}
+
+impl CurriculumParams for ReverseParams {
+    fn validate(&self) -> Result<(), ParamError> {
+        check_unit("success_threshold", self.success_threshold)?;
+        for (k, x) in [
+            ("start_radius", self.start_radius),
+            ("radius_step", self.radius_step),
+            ("max_radius", self.max_radius),
+        ] {
+            if !(x.is_finite() && x > 0.0) {
+                return Err(ParamError::new(
+                    k,
+                    format!("must be a finite number > 0 (rad), got {x}"),
+                ));
+            }
+        }
+        if self.start_radius > self.max_radius {
+            return Err(ParamError::new(
+                "start_radius",
+                format!(
+                    "start_radius ({}) must be <= max_radius ({})",
+                    self.start_radius, self.max_radius
+                ),
+            ));
+        }
+        check_window(self.window)
+    }
+    fn build(self) -> Box<dyn Curriculum> {
+        Box::new(Reverse::new(
+            self.start_radius,
+            self.radius_step,
+            self.max_radius,
+            self.success_threshold,
+            self.window,
+        ))
+    }
+}
 
 /// Reverse curriculum over a joint-space ball around the goal configuration.
 #[derive(Clone, Debug)]

@@ -1,7 +1,10 @@
 //! `staged`: difficulty stages — how many obstacles are active, how far the goal may be from the start, how often
 //! the goal jumps — advanced when the recent success rate passes a threshold.
 
-use super::{Curriculum, EpisodeDraw, SuccessWindow};
+use super::{
+    build_from, check_unit, check_window, default_params, Curriculum, CurriculumInfo,
+    CurriculumParams, EpisodeDraw, ParamError, SuccessWindow, MAX_STAGES,
+};
 use crate::sim::ArmEnv;
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
@@ -17,6 +20,80 @@ pub struct Stage {
     /// Random goal jumps per second.
     #[serde(default)]
     pub jump_rate: f64,
+}
+
+/// Registry entry.
+pub const INFO: CurriculumInfo = CurriculumInfo {
+    name: "staged",
+    meaning: "difficulty stages (obstacle count, goal distance, goal-jump rate) advanced when recent success passes a threshold",
+    params: &[
+        ("stages", "list of {obstacles, goal_distance (m), jump_rate (1/s)}, easiest first"),
+        ("success_threshold", "recent success rate that advances a stage"),
+        ("window", "episodes in the recent success rate"),
+    ],
+    defaults: default_params::<StagedParams>,
+    build: build_from::<StagedParams>,
+};
+
+/// Parameters of `staged`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct StagedParams {
+    /// The stages, easiest first (1 to `MAX_STAGES`). Default: `Staged::default_stages()` (three stages).
+    pub stages: Vec<Stage>,
+    /// Recent success rate that advances a stage, in [0, 1]. Default 0.7.
+    pub success_threshold: f64,
+    /// Episodes in the recent success rate. Default 40.
+    pub window: usize,
+}
+
+impl Default for StagedParams {
+    fn default() -> Self {
+        StagedParams {
+            stages: Staged::default_stages(),
+            success_threshold: 0.7,
+            window: 40,
+        }
+    }
+}
+
+impl CurriculumParams for StagedParams {
+    fn validate(&self) -> Result<(), ParamError> {
+        check_unit("success_threshold", self.success_threshold)?;
+        check_window(self.window)?;
+        if self.stages.is_empty() || self.stages.len() > MAX_STAGES {
+            return Err(ParamError::new(
+                "stages",
+                format!("needs 1 to {MAX_STAGES} stages, got {}", self.stages.len()),
+            ));
+        }
+        for (i, s) in self.stages.iter().enumerate() {
+            if !(s.goal_distance.is_finite() && s.goal_distance > 0.0) {
+                return Err(ParamError::new(
+                    format!("stages[{i}].goal_distance"),
+                    format!("must be > 0 m, got {}", s.goal_distance),
+                ));
+            }
+            let max_rate = crate::sim::scenario::MAX_GOAL_JUMP_RATE;
+            if !(s.jump_rate.is_finite() && (0.0..=max_rate).contains(&s.jump_rate)) {
+                return Err(ParamError::new(
+                    format!("stages[{i}].jump_rate"),
+                    format!(
+                        "must be in [0, {max_rate}] jumps per second, got {}",
+                        crate::config::num(s.jump_rate)
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+    fn build(self) -> Box<dyn Curriculum> {
+        Box::new(Staged::new(
+            self.stages,
+            self.success_threshold,
+            self.window,
+        ))
+    }
 }
 
 /// Staged curriculum.

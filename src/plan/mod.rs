@@ -28,7 +28,7 @@ pub mod spec;
 pub mod tree;
 
 pub use path::{Polyline, Projection, ReferencePath};
-pub use planner::{planner_by_name, Budget, Planner, Problem, Search, PLANNERS};
+pub use planner::{Budget, Planner, Problem, Search};
 pub use space::{ArmSpace, ConfigSpace, DiscPlane};
 pub use spec::PlanSpec;
 
@@ -37,6 +37,26 @@ use rand::Rng;
 use rand_chacha::ChaCha8Rng;
 use space::distance;
 use std::time::{Duration, Instant};
+
+/// Every planner, keyed by `Planner::name` (the TOML `plan.planner`). A new planner is one file plus one
+/// line here.
+pub static PLANNERS: &[&dyn Planner] = &[&rrt_star::RrtStar, &bi_rrt_star::BiRrtStar];
+
+/// The planner registered under `name`; None for a name no planner has (`PlanSpec::validate` rejects it).
+pub fn planner_by_name(name: &str) -> Option<&'static dyn Planner> {
+    PLANNERS.iter().copied().find(|p| p.name() == name)
+}
+
+/// The listing of `termwise planners`.
+pub fn describe_planners() -> String {
+    let mut s = String::from(
+        "Reference-path planners. Pick one with [plan] planner = \"<name>\" in the experiment file.\n\n",
+    );
+    for p in PLANNERS {
+        s.push_str(&format!("{:<14} {}\n", p.name(), p.summary()));
+    }
+    s
+}
 
 /// Smallest clearance margin the planner works with, m: a start closer than twice this to contact gets the
 /// fallback (edge checks advance by at least the margin, so it bounds their cost).
@@ -52,6 +72,9 @@ pub enum FallbackReason {
     NoFreeGoalConfiguration,
     /// The search used its budget without reaching a goal configuration.
     NotFound,
+    /// `PlanSpec::planner` names no registered planner (a spec built in code without `validate`): no search
+    /// ran, rather than a silent substitute.
+    UnknownPlanner,
 }
 
 /// Everything one planning call produced.
@@ -240,46 +263,60 @@ pub fn plan_detailed(
         // The nearest goal configuration in a straight line: no path to any goal can be shorter.
         Some(vec![start, free[0]])
     } else {
-        let budget = Budget {
-            iterations: spec.iterations,
-            deadline: Some(began + Duration::from_secs_f64(spec.time_budget_ms * 1e-3)),
-            step: spec.step,
-            goal_bias: spec.goal_bias,
-            rewire_factor: spec.rewire_factor,
-            keep_tree,
-        };
-        let planner = planner_by_name(&spec.planner).unwrap_or(&rrt_star::RrtStar);
-        let problem = Problem {
-            start,
-            goals: free.clone(),
-        };
-        let found = planner.search(&space, &problem, &budget, rng);
-        report.iterations = found.iterations;
-        report.nodes = found.nodes;
-        report.timed_out = found.timed_out;
-        report.tree = found.edges;
-        if found.timed_out {
-            tracing::warn!(
+        'search: {
+            let budget = Budget {
+                iterations: spec.iterations,
+                deadline: Some(began + Duration::from_secs_f64(spec.time_budget_ms * 1e-3)),
+                step: spec.step,
+                goal_bias: spec.goal_bias,
+                rewire_factor: spec.rewire_factor,
+                keep_tree,
+            };
+            let Some(planner) = planner_by_name(&spec.planner) else {
+                tracing::error!(
+                    "unknown planner {:?} (known: {}); the path is the straight-line fallback",
+                    spec.planner,
+                    PLANNERS
+                        .iter()
+                        .map(|p| p.name())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                );
+                report.fallback_reason = Some(FallbackReason::UnknownPlanner);
+                break 'search None;
+            };
+            let problem = Problem {
+                start,
+                goals: free.clone(),
+            };
+            let found = planner.search(&space, &problem, &budget, rng);
+            report.iterations = found.iterations;
+            report.nodes = found.nodes;
+            report.timed_out = found.timed_out;
+            report.tree = found.edges;
+            if found.timed_out {
+                tracing::warn!(
                 "planning stopped by the {} ms time budget after {} of {} iterations; the result depends on machine speed",
                 spec.time_budget_ms,
                 found.iterations,
                 spec.iterations
             );
-        }
-        match found.path {
-            Some(p) => {
-                report.search_cost = found.cost;
-                let p = smooth::shortcut_vertices(&space, &p);
-                Some(smooth::shortcut_random(
-                    &space,
-                    p,
-                    spec.shortcut_passes,
-                    rng,
-                ))
             }
-            None => {
-                report.fallback_reason = Some(FallbackReason::NotFound);
-                None
+            match found.path {
+                Some(p) => {
+                    report.search_cost = found.cost;
+                    let p = smooth::shortcut_vertices(&space, &p);
+                    Some(smooth::shortcut_random(
+                        &space,
+                        p,
+                        spec.shortcut_passes,
+                        rng,
+                    ))
+                }
+                None => {
+                    report.fallback_reason = Some(FallbackReason::NotFound);
+                    None
+                }
             }
         }
     };

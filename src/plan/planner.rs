@@ -1,6 +1,7 @@
 //! The planner plug point: a `Planner` trait (a name and one search method over any `ConfigSpace`), the
-//! search problem and budget it receives, what it returns, and the registry keyed by the name used in TOML
-//! (`plan.planner`). A new planner is one file plus one line in `PLANNERS`.
+//! search problem and budget it receives, what it returns, and the helpers planners share. The registry
+//! keyed by the TOML name (`plan.planner`) is `PLANNERS` in `plan/mod.rs`: a new planner is one file plus one
+//! line there.
 
 use super::space::{distance, ConfigSpace};
 use super::tree::Tree;
@@ -80,14 +81,6 @@ pub trait Planner: Sync {
         budget: &Budget,
         rng: &mut ChaCha8Rng,
     ) -> Search;
-}
-
-/// All planners, keyed by `Planner::name`.
-pub static PLANNERS: &[&dyn Planner] = &[&super::rrt_star::RrtStar, &super::bi_rrt_star::BiRrtStar];
-
-/// The planner registered under `name`.
-pub fn planner_by_name(name: &str) -> Option<&'static dyn Planner> {
-    PLANNERS.iter().copied().find(|p| p.name() == name)
 }
 
 /// A uniform sample in the space's bounding box.

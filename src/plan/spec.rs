@@ -1,7 +1,7 @@
 //! `PlanSpec`: the planner settings read from a `[plan]` TOML table (embedded in experiment files, or a
 //! file of its own for `termwise plan --spec`), with validation that names the offending key.
 
-use super::planner::{planner_by_name, PLANNERS};
+use super::{planner_by_name, PLANNERS};
 use crate::config::{parse_toml, ConfigError};
 use serde::Deserialize;
 

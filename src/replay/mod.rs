@@ -5,7 +5,7 @@
 use crate::learn::Policy;
 use crate::sim::{Shape, StepReport};
 use crate::study::experiment::{Experiment, VariantSpec};
-use crate::study::task::{begin_eval, Episode, EpisodeMetrics};
+use crate::task::{begin_eval, Episode, EpisodeMetrics};
 use plotters::prelude::*;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -66,14 +66,8 @@ pub enum Controller<'a> {
 
 /// Roll out evaluation episode `j` of seed `eval_seed` and record every step.
 pub fn record(v: &VariantSpec, controller: &Controller, eval_seed: u64, j: u64) -> Recording {
-    let mut ep = Episode::new(
-        v.scenario.clone(),
-        &v.reward,
-        &v.plan,
-        v.learner.gamma,
-        v.observation.waypoints,
-    );
-    let mut baseline = crate::study::run::baseline_actor(v);
+    let mut ep = v.episode();
+    let mut baseline = crate::task::baseline_actor(&v.baseline, &v.plan, &v.scenario);
     begin_eval(&mut ep, eval_seed, j);
     let names: Vec<String> = v
         .reward
@@ -457,9 +451,8 @@ fn check_fit(
     v: &VariantSpec,
     scenario: Option<&Path>,
 ) -> Result<(), ReplayError> {
-    use crate::study::run::{arm_description, config_hash, observation_layout};
-    let (obs_dim, layout) = observation_layout(v);
-    let arm = arm_description(v);
+    let (obs_dim, layout) = v.observation_layout();
+    let arm = v.arm_description();
     let target = format!(
         "variant `{}` of {}{}",
         v.name,
@@ -512,13 +505,13 @@ fn check_fit(
             t.variant,
             t.study
         );
-    } else if scenario.is_none() && config_hash(exp, v, t.seed) != t.config_hash {
+    } else if scenario.is_none() && exp.config_hash(v, t.seed) != t.config_hash {
         tracing::warn!(
             "checkpoint {} was trained under another configuration of variant `{}` (config hash {}, the file now gives {})",
             path.display(),
             t.variant,
             t.config_hash,
-            config_hash(exp, v, t.seed)
+            exp.config_hash(v, t.seed)
         );
     }
     Ok(())
@@ -623,7 +616,7 @@ pub fn run_replay(a: &ReplayArgs) -> Result<String, ReplayError> {
             path: path.clone(),
             source,
         })?;
-        let s = crate::study::task::EvalSummary::from_episodes(&eps);
+        let s = crate::task::EvalSummary::from_episodes(&eps);
         said.push(format!(
             "{} ({n} episodes, clean success rate {:.3}, reached rate {:.3}, collision rate {:.3}, mean return {:.3})",
             path.display(),

@@ -9,8 +9,8 @@
 //! (`cost`, `penalty`, `bonus`, `joint`, ...) must be >= 0; the term supplies the minus sign.
 //!
 //! # Adding a term
-//! Write one file in `terms/` defining a `Term` type and a `pub const INFO: TermInfo`, then add one line
-//! to `REGISTRY` in `registry.rs`. Parsing, validation, defaults, the `termwise terms` listing and the
+//! Write one file in `terms/` defining a `Term` type and a `pub const INFO: TermInfo`, then add its `mod`
+//! line and one line to `REGISTRY` in `terms/mod.rs`. Parsing, validation, defaults, the `termwise terms` listing and the
 //! composer all read the registry.
 
 mod composer;

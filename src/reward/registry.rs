@@ -1,28 +1,17 @@
-//! The registry of reward terms keyed by their TOML name: each entry's meaning, sign convention,
-//! parameters with defaults, and constructor. Drives parsing, validation, the composer and `termwise terms`.
+//! The registry of reward terms keyed by their TOML name (the list itself is `terms::REGISTRY`): each entry's
+//! meaning, sign convention, parameters with defaults, and constructor. Drives parsing, validation, the composer and `termwise terms`.
 
 use super::{terms, Term};
 use std::fmt::Write as _;
 
-/// All built-in terms, in the order the composer evaluates and reports them. One line per term.
-static REGISTRY: [TermInfo; 7] = [
-    terms::goal::INFO,
-    terms::time::INFO,
-    terms::acceleration::INFO,
-    terms::waypoint_distance::INFO,
-    terms::waypoint_progress::INFO,
-    terms::collision::INFO,
-    terms::potential::INFO,
-];
-
-/// The registered terms.
+/// The registered terms (the list is `terms::REGISTRY`, beside the term files).
 pub fn registry() -> &'static [TermInfo] {
-    &REGISTRY
+    terms::REGISTRY
 }
 
 /// Look up a term by its TOML name.
 pub fn find(name: &str) -> Option<&'static TermInfo> {
-    REGISTRY.iter().find(|t| t.name == name)
+    registry().iter().find(|t| t.name == name)
 }
 
 /// What the registry knows about one term.

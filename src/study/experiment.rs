@@ -87,25 +87,7 @@ pub struct GenerateSpec {
     pub grid: BTreeMap<String, Vec<f64>>,
 }
 
-/// Whether a variant trains a policy or runs the classical baseline controller.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum VariantKind {
-    /// PPO learns a policy.
-    Learned,
-    /// The classical tracking controller (evaluated once, shown as a flat reference line).
-    Baseline,
-}
-
-/// One key a variant changes relative to the base.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct Change {
-    pub key: String,
-    /// Value in the base ("(unset)" when absent).
-    pub base: String,
-    /// Value in the variant ("(unset)" when removed).
-    pub value: String,
-}
+pub use crate::results::{Change, VariantKind};
 
 /// A fully resolved, validated variant.
 #[derive(Clone, Debug)]

@@ -4,7 +4,6 @@
 //! at once when the owner ran on this host and its process id is dead, otherwise when neither the lock nor
 //! the run's heartbeat has moved for the stale limit.
 
-use super::layout::read_run_json;
 use crate::fsio::{host_tag, pid_alive};
 use serde::{Deserialize, Serialize};
 use std::io::Write as _;
@@ -113,7 +112,10 @@ pub fn holder(dir: &Path, now_unix: u64, stale_after_s: u64) -> Holder {
             Holder::Stale(owner)
         };
     }
-    let beat = read_run_json(dir).map_or(0, |r| r.heartbeat_unix);
+    let beat = crate::results::read_run(dir)
+        .ok()
+        .flatten()
+        .map_or(0, |r| r.heartbeat_unix);
     if now_unix.saturating_sub(owner.since_unix.max(beat)) > stale_after_s {
         Holder::Stale(owner)
     } else {

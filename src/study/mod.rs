@@ -1,5 +1,6 @@
 //! `study`: experiment files, variant and ablation expansion, run planning, parallel execution with resume, and
-//! the results layout. `termwise run` and `termwise check` live here.
+//! writing study.json and each run's files in the results format (`results`). The library side of `termwise run`,
+//! `check`, `slurm` and `status`.
 
 pub mod experiment;
 pub mod layout;
@@ -7,10 +8,10 @@ pub mod lock;
 pub mod run;
 pub mod slurm;
 pub mod status;
-pub mod task;
+pub mod variant;
 
+pub use crate::results::{RunRecord, RunStatus};
 pub use experiment::{Experiment, VariantKind, VariantSpec};
-pub use layout::{RunRecord, RunStatus};
 pub use run::{plan_runs, RunSpec};
 
 use crate::config::ConfigError;
@@ -31,6 +32,8 @@ pub enum StudyError {
         path: PathBuf,
         source: std::io::Error,
     },
+    #[error(transparent)]
+    Results(#[from] crate::results::ResultsError),
     #[error("{dir}: results there come from a different configuration (run {variant}/seed-{seed} has config hash {found}, this file gives {expected}); refusing to mix them — choose a new --out folder or remove the old results")]
     ChangedConfig {
         dir: PathBuf,
@@ -77,7 +80,7 @@ pub struct StudyOutcome {
 
 /// Whether a run's folder already holds a finished run of this config; a different config hash is an error.
 fn finished(r: &RunSpec, exp: &Experiment) -> Result<bool, StudyError> {
-    let rec = match layout::read_run_json_checked(&r.dir) {
+    let rec = match crate::results::read_run(&r.dir) {
         Ok(rec) => rec,
         Err(why) => {
             // An unreadable run.json (e.g. a disk filled up) is restarted like an interrupted run.
@@ -289,7 +292,9 @@ pub fn run_study(
         match st {
             RunStatus::Done => outcome.done += 1,
             RunStatus::Diverged => outcome.diverged += 1,
-            RunStatus::Interrupted | RunStatus::Running => outcome.interrupted += 1,
+            RunStatus::Interrupted | RunStatus::Running | RunStatus::Missing => {
+                outcome.interrupted += 1
+            }
         }
     }
     tracing::info!("study finished in {:.1} s", started.elapsed().as_secs_f64());
@@ -434,7 +439,7 @@ fn redraws_text(exp: &Experiment) -> String {
                     v.name,
                     redraws,
                     if unsolved > 0 {
-                        format!(", {unsolved} still unsolved after {} draws", task::MAX_REDRAWS)
+                        format!(", {unsolved} still unsolved after {} draws", crate::task::MAX_REDRAWS)
                     } else {
                         String::new()
                     }
@@ -500,7 +505,9 @@ fn calibration(exp: &Experiment) -> Result<(f64, f64), StudyError> {
     let Some(v) = exp.variants.iter().find(|v| v.kind == VariantKind::Learned) else {
         return Ok((f64::INFINITY, 0.0));
     };
-    let shared = std::sync::Arc::new(Mutex::new(task::RunShared::new(v.curriculum.build())));
+    let shared = std::sync::Arc::new(Mutex::new(crate::task::RunShared::new(
+        v.curriculum.build(),
+    )));
     let envs = run::build_envs(v, 1, &shared);
     let mut trainer = crate::learn::Trainer::new(v.learner.clone(), envs, 1)
         .map_err(|e| StudyError::Run(e.to_string()))?;
@@ -517,15 +524,26 @@ fn calibration(exp: &Experiment) -> Result<(f64, f64), StudyError> {
     Ok((sps, eval_s))
 }
 
-/// The whole `termwise run` command: load, run (or one cell), then draw the report and return the terminal summary.
+/// What `termwise run` did, for the command to print (and to draw the report from `out`).
+#[derive(Clone, Debug)]
+pub struct RunCommandOutcome {
+    /// The lines to print.
+    pub text: String,
+    /// The results folder.
+    pub out: PathBuf,
+    /// Ctrl-C stopped the study before it finished.
+    pub interrupted: bool,
+}
+
+/// The study part of `termwise run`: load, run (or one cell), and say what happened. Drawing the report is
+/// the command's business (`cmd::run`), so `study` does not depend on `chart`.
 pub fn cli_run(
     path: &Path,
     jobs: usize,
     out: Option<PathBuf>,
     cell: Option<usize>,
-    report: bool,
     stop: &AtomicBool,
-) -> Result<String, StudyError> {
+) -> Result<RunCommandOutcome, StudyError> {
     let exp = experiment::load(path)?;
     let out = out.unwrap_or_else(|| Path::new("results").join(&exp.study.name));
     let o = run_study(&exp, &out, jobs, cell, stop)?;
@@ -550,16 +568,13 @@ pub fn cli_run(
             list.join(", ")
         ));
     }
-    if stop.load(std::sync::atomic::Ordering::SeqCst) {
+    let interrupted = stop.load(std::sync::atomic::Ordering::SeqCst);
+    if interrupted {
         text.push_str("\ntermwise: interrupted; run the same command again to finish the study");
-        return Ok(text);
     }
-    if report && cell.is_none() {
-        let files = crate::chart::write_report(&out, &crate::chart::ReportOptions::default())
-            .map_err(|e| StudyError::Run(format!("drawing the report: {e}")))?;
-        text.push('\n');
-        text.push_str(&crate::chart::terminal_summary(&files.summary));
-        text.push_str(&format!("\nreport: {}", out.join("report.html").display()));
-    }
-    Ok(text)
+    Ok(RunCommandOutcome {
+        text,
+        out,
+        interrupted,
+    })
 }

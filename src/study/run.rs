@@ -1,13 +1,14 @@
 //! One run of a study (a variant and a seed): build the task environments, train with PPO, evaluate the
 //! deterministic policy on the study's fixed episodes every `eval_every` steps, and keep the run's folder
-//! (run.json, evaluations.csv, term_contributions.csv, checkpoints) current on disk after every evaluation.
+//! (run.json, evaluations.csv, term_contributions.csv, training.csv, checkpoints) current on disk after every
+//! evaluation, in the results format (`results`).
 
 use super::experiment::{fnv1a_hex, Experiment, VariantKind, VariantSpec};
-use super::layout::{self, RunRecord, RunStatus};
-use super::task::{begin_eval, run_episode, Episode, EvalSummary, RunShared, TaskEnv};
 use super::StudyError;
 use crate::learn::checkpoint::TrainedFor;
-use crate::learn::{Environment, LearnError, NoObserver, Policy, Trainer};
+use crate::learn::{Environment, IterationStats, LearnError, Policy, Trainer};
+use crate::results::{self, EvalRow, RunRecord, RunStatus, SpeedRow, TermTable, TrainingRow};
+use crate::task::{EvalSummary, RunShared, TaskEnv};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, Mutex};
@@ -38,32 +39,12 @@ pub fn plan_runs(exp: &Experiment, out: &Path) -> Vec<RunSpec> {
                 index: runs.len(),
                 variant: vi,
                 seed,
-                dir: out.join(&v.name).join(format!("seed-{seed}")),
-                config_hash: config_hash(exp, v, seed),
+                dir: results::run_dir(out, &v.name, seed),
+                config_hash: exp.config_hash(v, seed),
             });
         }
     }
     runs
-}
-
-/// Identifies everything that determines a run's results.
-pub fn config_hash(exp: &Experiment, v: &VariantSpec, seed: u64) -> String {
-    let st = &exp.study;
-    let settings = format!(
-        "{}|{}|{}|{}|{}|{}",
-        st.budget,
-        exp.eval_every(),
-        st.eval_episodes,
-        st.eval_seed,
-        seed,
-        env!("CARGO_PKG_VERSION")
-    );
-    fnv1a_hex(&[
-        st.name.as_bytes(),
-        v.name.as_bytes(),
-        v.merged.as_bytes(),
-        settings.as_bytes(),
-    ])
 }
 
 /// The run's random seed, derived from (study name, variant name, seed).
@@ -76,48 +57,6 @@ pub fn run_seed(exp: &Experiment, v: &VariantSpec, seed: u64) -> u64 {
     u64::from_str_radix(&h, 16).expect("16 hex digits")
 }
 
-/// The observation a variant's policy sees: its length and a description of its layout.
-pub fn observation_layout(v: &VariantSpec) -> (usize, String) {
-    let ep = Episode::new(
-        v.scenario.clone(),
-        &v.reward,
-        &v.plan,
-        v.learner.gamma,
-        v.observation.waypoints,
-    );
-    let (sim, all) = (ep.sim.obs_dim(), ep.obs_dim());
-    let path = if v.observation.waypoints {
-        format!(" + {} waypoints x 2", v.plan.waypoints)
-    } else {
-        " (observation.waypoints = false)".into()
-    };
-    let n = v.scenario.n();
-    (
-        all,
-        format!("{all} values: {n}-joint arm, goal and obstacles ({sim}){path}"),
-    )
-}
-
-/// The arm a variant's policy drives, as recorded in checkpoints.
-pub fn arm_description(v: &VariantSpec) -> String {
-    let sc = &v.scenario;
-    let lengths: Vec<String> = sc
-        .arm
-        .links
-        .iter()
-        .map(|l| format!("{}", l.length))
-        .collect();
-    let control = match sc.control {
-        crate::sim::ControlMode::Torque => "torque",
-        crate::sim::ControlMode::Acceleration => "acceleration",
-    };
-    format!(
-        "{} joints, link lengths [{}] m, {control} control",
-        sc.n(),
-        lengths.join(", ")
-    )
-}
-
 /// What a run's checkpoints are trained for.
 pub fn trained_for(exp: &Experiment, v: &VariantSpec, spec: &RunSpec) -> TrainedFor {
     TrainedFor {
@@ -125,8 +64,8 @@ pub fn trained_for(exp: &Experiment, v: &VariantSpec, spec: &RunSpec) -> Trained
         variant: v.name.clone(),
         seed: spec.seed,
         config_hash: spec.config_hash.clone(),
-        arm: arm_description(v),
-        observation: observation_layout(v).1,
+        arm: v.arm_description(),
+        observation: v.observation_layout().1,
     }
 }
 
@@ -140,81 +79,30 @@ pub struct RunProgress {
 
 /// Evaluate a deterministic policy on the study's fixed evaluation episodes.
 pub fn evaluate_policy(exp: &Experiment, v: &VariantSpec, policy: &Policy) -> EvalSummary {
-    let mut ep = Episode::new(
-        v.scenario.clone(),
-        &v.reward,
-        &v.plan,
-        v.learner.gamma,
-        v.observation.waypoints,
-    );
-    let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
-    let mut act = |_: &Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
-    for j in 0..exp.study.eval_episodes as u64 {
-        eps.push(run_episode(&mut ep, exp.study.eval_seed, j, &mut act));
-    }
-    EvalSummary::from_episodes(&eps)
+    let mut act =
+        |_: &crate::task::Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
+    let episodes = exp.study.eval_episodes as u64;
+    crate::task::evaluate(&mut v.episode(), exp.study.eval_seed, episodes, &mut act)
 }
 
 /// Redraws the study's evaluation episodes need under variant `v` (rejected draws, episodes left unsolved).
 pub fn eval_redraws(exp: &Experiment, v: &VariantSpec) -> (u64, u64) {
-    let mut ep = Episode::new(
-        v.scenario.clone(),
-        &v.reward,
-        &v.plan,
-        v.learner.gamma,
-        v.observation.waypoints,
-    );
-    let (mut redraws, mut unsolved) = (0, 0);
-    for j in 0..exp.study.eval_episodes as u64 {
-        let r = begin_eval(&mut ep, exp.study.eval_seed, j);
-        redraws += r.redraws as u64;
-        unsolved += r.unsolved as u64;
-    }
-    (redraws, unsolved)
+    let episodes = exp.study.eval_episodes as u64;
+    crate::task::eval_redraws(&mut v.episode(), exp.study.eval_seed, episodes)
 }
 
 /// Evaluate the classical tracking controller on the study's fixed evaluation episodes. The tracker follows
 /// each episode's reference path and is re-targeted whenever the episode replans after a scenario event.
 pub fn evaluate_baseline(exp: &Experiment, v: &VariantSpec) -> EvalSummary {
-    let mut ep = Episode::new(
-        v.scenario.clone(),
-        &v.reward,
-        &v.plan,
-        v.learner.gamma,
-        v.observation.waypoints,
-    );
-    let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
-    for j in 0..exp.study.eval_episodes as u64 {
-        eps.push(run_episode(
-            &mut ep,
-            exp.study.eval_seed,
-            j,
-            &mut baseline_actor(v),
-        ));
-    }
+    let mut ep = v.episode();
+    let eps: Vec<_> = (0..exp.study.eval_episodes as u64)
+        .map(|j| {
+            // A fresh controller per episode, as replay builds it.
+            let mut act = crate::task::baseline_actor(&v.baseline, &v.plan, &v.scenario);
+            crate::task::run_episode(&mut ep, exp.study.eval_seed, j, &mut act)
+        })
+        .collect();
     EvalSummary::from_episodes(&eps)
-}
-
-/// A controller closure driving an `Episode` with the baseline (normalised actions): it plans and follows its
-/// own route with its clearance (`control::RouteFollower`), and replans after the episode's scenario events.
-pub fn baseline_actor(v: &VariantSpec) -> impl FnMut(&Episode, &[f32], &mut [f32]) {
-    let mut follower = crate::control::RouteFollower::new(&v.baseline, &v.plan, &v.scenario);
-    let mut seen: Option<(usize, f64)> = None;
-    let mut out = vec![0.0; v.scenario.n()];
-    move |ep: &Episode, _obs: &[f32], action: &mut [f32]| {
-        let n = ep.sim.n();
-        let t = ep.sim.time();
-        // A new episode (time went back) or a scenario event: plan from here.
-        let key = (ep.replans(), t);
-        if seen.is_none_or(|(r, t0)| r != key.0 || t < t0) {
-            follower.reset();
-        }
-        seen = Some(key);
-        follower.action(&ep.sim, &mut out);
-        for i in 0..n {
-            action[i] = (out[i] / ep.sim.action_limits()[i]) as f32;
-        }
-    }
 }
 
 /// Build the training environments of a run.
@@ -225,20 +113,80 @@ pub fn build_envs(
 ) -> Vec<Box<dyn Environment>> {
     (0..v.learner.num_envs)
         .map(|i| {
-            let ep = Episode::new(
-                v.scenario.clone(),
-                &v.reward,
-                &v.plan,
-                v.learner.gamma,
-                v.observation.waypoints,
-            );
             Box::new(TaskEnv::new(
-                ep,
+                v.episode(),
                 rseed ^ (i as u64 + 1).wrapping_mul(0x9E37_79B9_7F4A_7C15),
                 shared.clone(),
             )) as Box<dyn Environment>
         })
         .collect()
+}
+
+/// What a run has written so far, kept in memory and rewritten whole (atomically) at every evaluation.
+struct RunTables {
+    evaluations: Vec<EvalRow>,
+    terms: TermTable,
+    training: Vec<TrainingRow>,
+    speed: Vec<SpeedRow>,
+}
+
+impl RunTables {
+    fn new(term_names: Vec<String>) -> RunTables {
+        RunTables {
+            evaluations: Vec::new(),
+            terms: TermTable {
+                names: term_names,
+                ..TermTable::default()
+            },
+            training: Vec::new(),
+            speed: Vec::new(),
+        }
+    }
+
+    fn push_evaluation(&mut self, env_steps: u64, s: &EvalSummary, level: f64) {
+        self.evaluations.push(s.row(env_steps, level));
+        self.terms.steps.push(env_steps);
+        self.terms.values.push(s.terms.clone());
+    }
+
+    fn push_iteration(&mut self, st: &IterationStats) {
+        self.training.push(training_row(st));
+        self.speed.push(SpeedRow {
+            iteration: st.iteration,
+            env_steps: st.env_steps,
+            steps_per_s: st.steps_per_second,
+        });
+    }
+
+    fn save(&self, dir: &Path) -> Result<(), StudyError> {
+        results::write_evaluations(dir, &self.evaluations)?;
+        results::write_terms(dir, &self.terms)?;
+        if !self.training.is_empty() {
+            results::write_training(dir, &self.training)?;
+            results::write_training_speed(dir, &self.speed)?;
+        }
+        Ok(())
+    }
+}
+
+/// The reproducible figures of one PPO iteration, as training.csv holds them.
+pub fn training_row(st: &IterationStats) -> TrainingRow {
+    TrainingRow {
+        iteration: st.iteration,
+        env_steps: st.env_steps,
+        learning_rate: st.learning_rate,
+        policy_loss: st.policy_loss,
+        value_loss: st.value_loss,
+        entropy: st.entropy,
+        approx_kl: st.approx_kl,
+        clip_fraction: st.clip_fraction,
+        explained_variance: st.explained_variance,
+        policy_grad_norm: st.policy_grad_norm,
+        value_grad_norm: st.value_grad_norm,
+        action_std: st.action_std,
+        episodes: st.episodes,
+        mean_episode_return: st.mean_episode_return,
+    }
 }
 
 /// Execute one run to completion (or interruption / divergence), writing its folder as it goes.
@@ -250,26 +198,22 @@ pub fn execute(
 ) -> Result<RunStatus, StudyError> {
     let v = &exp.variants[spec.variant];
     let t0 = Instant::now();
-    let mut record = RunRecord::new(exp, v, spec);
-    layout::clear_run(&spec.dir)?;
-    layout::write_run_json(&spec.dir, &record)?;
+    let mut record = RunRecord::new(&exp.study.name, &v.name, spec.seed, &spec.config_hash);
+    results::clear_run(&spec.dir)?;
+    results::write_run(&spec.dir, &record)?;
     let term_names: Vec<String> = v
         .reward
         .term_names()
         .iter()
         .map(|s| s.to_string())
         .collect();
-    let mut rows: Vec<(u64, EvalSummary, f64)> = Vec::new();
-    let save_rows = |rows: &[(u64, EvalSummary, f64)]| -> Result<(), StudyError> {
-        layout::write_evaluations(&spec.dir, rows)?;
-        layout::write_terms(&spec.dir, &term_names, rows)
-    };
+    let mut tables = RunTables::new(term_names);
     if v.kind == VariantKind::Baseline {
         let summary = evaluate_baseline(exp, v);
-        rows.push((0, summary, 1.0));
-        save_rows(&rows)?;
+        tables.push_evaluation(0, &summary, 1.0);
+        tables.save(&spec.dir)?;
         record.finish(RunStatus::Done, 0, t0.elapsed().as_secs_f64(), None);
-        layout::write_run_json(&spec.dir, &record)?;
+        results::write_run(&spec.dir, &record)?;
         return Ok(RunStatus::Done);
     }
     let mut cfg = v.learner.clone();
@@ -281,15 +225,15 @@ pub fn execute(
     let envs = build_envs(v, rseed, &shared);
     let mut trainer = Trainer::new(cfg, envs, rseed)
         .map_err(|e| StudyError::Run(format!("{}: {e}", spec.dir.display())))?;
-    let ckpt = spec.dir.join("policy.safetensors");
-    let best = spec.dir.join("policy-best.safetensors");
+    let ckpt = spec.dir.join(results::CHECKPOINT_FILE);
+    let best = spec.dir.join(results::BEST_CHECKPOINT_FILE);
     let budget = exp.study.budget as u64;
     let every = exp.eval_every();
     let meta = trained_for(exp, v, spec);
     let mut best_success = -1.0;
     let level = |sh: &Arc<Mutex<RunShared>>| sh.lock().expect("run state").curriculum.level();
     let mut evaluate = |trainer: &Trainer,
-                        rows: &mut Vec<(u64, EvalSummary, f64)>,
+                        tables: &mut RunTables,
                         best_success: &mut f64|
      -> Result<(), StudyError> {
         let s = evaluate_policy(exp, v, trainer.policy());
@@ -300,20 +244,20 @@ pub fn execute(
             level: lv,
         });
         let improved = s.success_rate > *best_success;
-        rows.push((trainer.env_steps(), s, lv));
-        save_rows(rows)?;
+        tables.push_evaluation(trainer.env_steps(), &s, lv);
+        tables.save(&spec.dir)?;
         trainer
             .save_checkpoint_for(&ckpt, Some(&meta))
             .map_err(|e| StudyError::Run(e.to_string()))?;
         if improved {
-            *best_success = rows.last().expect("just pushed").1.success_rate;
+            *best_success = s.success_rate;
             trainer
                 .save_checkpoint_for(&best, Some(&meta))
                 .map_err(|e| StudyError::Run(e.to_string()))?;
         }
         Ok(())
     };
-    evaluate(&trainer, &mut rows, &mut best_success)?;
+    evaluate(&trainer, &mut tables, &mut best_success)?;
     let mut next_eval = every;
     let mut status = RunStatus::Done;
     let mut message = None;
@@ -322,8 +266,10 @@ pub fn execute(
             status = RunStatus::Interrupted;
             break;
         }
-        match trainer.iterate(&mut NoObserver) {
-            Ok(_) => {}
+        // The iteration's figures reach training.csv through the trainer's observer interface.
+        let mut seen: Vec<IterationStats> = Vec::with_capacity(1);
+        match trainer.iterate(&mut seen) {
+            Ok(_) => seen.iter().for_each(|st| tables.push_iteration(st)),
             Err(e @ LearnError::Diverged { .. }) => {
                 status = RunStatus::Diverged;
                 message = Some(e.to_string());
@@ -332,7 +278,7 @@ pub fn execute(
             Err(e) => return Err(StudyError::Run(format!("{}: {e}", spec.dir.display()))),
         }
         if trainer.env_steps() >= next_eval || trainer.env_steps() >= budget {
-            evaluate(&trainer, &mut rows, &mut best_success)?;
+            evaluate(&trainer, &mut tables, &mut best_success)?;
             while next_eval <= trainer.env_steps() {
                 next_eval += every;
             }
@@ -343,18 +289,21 @@ pub fn execute(
             (record.redraws, record.unsolved, record.episodes) =
                 (sh.redraws, sh.unsolved, sh.episodes);
         }
-        layout::write_run_json(&spec.dir, &record)?;
+        results::write_run(&spec.dir, &record)?;
     }
-    if status == RunStatus::Interrupted && rows.last().map(|r| r.0) != Some(trainer.env_steps()) {
+    let last = tables.evaluations.last().map(|r| r.env_steps);
+    if status == RunStatus::Interrupted && last != Some(trainer.env_steps()) {
         // Record where the run stopped (the trainer's weights are the last good ones).
-        evaluate(&trainer, &mut rows, &mut best_success)?;
+        evaluate(&trainer, &mut tables, &mut best_success)?;
     }
+    // Iterations after the last evaluation (a diverged run) still reach training.csv.
+    tables.save(&spec.dir)?;
     record.finish(
         status,
         trainer.env_steps(),
         t0.elapsed().as_secs_f64(),
         message,
     );
-    layout::write_run_json(&spec.dir, &record)?;
+    results::write_run(&spec.dir, &record)?;
     Ok(status)
 }

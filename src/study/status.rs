@@ -1,9 +1,9 @@
 //! `termwise status`: how far a study has got, read from its results folder alone — runs done, running,
 //! stale (a `running` run whose heartbeat stopped: its process died), diverged, interrupted or missing.
 
-use super::layout::{read_run_json, read_run_json_checked, RunStatus, StudyRecord};
 use super::lock::{self, Holder};
 use super::StudyError;
+use crate::results::{read_run, RunStatus, StudyRecord, VariantKind};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
@@ -89,7 +89,7 @@ impl StudyStatus {
 /// Classify one run.json (or its absence) at time `now_unix`.
 pub fn classify(status: Option<(RunStatus, u64)>, now_unix: u64, stale_after_s: u64) -> CellState {
     match status {
-        None => CellState::Missing,
+        None | Some((RunStatus::Missing, _)) => CellState::Missing,
         Some((RunStatus::Done, _)) => CellState::Done,
         Some((RunStatus::Diverged, _)) => CellState::Diverged,
         Some((RunStatus::Interrupted, _)) => CellState::Interrupted,
@@ -107,33 +107,28 @@ pub fn study_status(
     now_unix: u64,
     stale_after_s: u64,
 ) -> Result<StudyStatus, StudyError> {
-    let p = dir.join("study.json");
-    let text = std::fs::read_to_string(&p).map_err(|source| StudyError::Io {
-        path: p.clone(),
-        source,
-    })?;
-    let rec: StudyRecord = serde_json::from_str(&text)
-        .map_err(|e| StudyError::Run(format!("{}: {e}", p.display())))?;
+    let rec: StudyRecord = crate::results::read_study(dir)?;
     let mut cells = Vec::new();
     for v in &rec.variants {
-        let seeds: Vec<u64> = if v.kind == "baseline" {
+        let seeds: Vec<u64> = if v.kind == VariantKind::Baseline {
             vec![0]
         } else {
             rec.seeds.clone()
         };
         for seed in seeds {
-            let run_dir = dir.join(&v.name).join(format!("seed-{seed}"));
-            let (run, mut state, mut note) = match read_run_json_checked(&run_dir) {
-                Ok(run) => {
-                    let state = classify(
-                        run.as_ref().map(|r| (r.status, r.heartbeat_unix)),
-                        now_unix,
-                        stale_after_s,
-                    );
-                    (run, state, None)
-                }
-                Err(why) => (None, CellState::Unreadable, Some(why)),
-            };
+            let run_dir = crate::results::run_dir(dir, &v.name, seed);
+            let (run, mut state, mut note) =
+                match read_run(&run_dir).map_err(|e| crate::error_chain::error_chain_text(&e)) {
+                    Ok(run) => {
+                        let state = classify(
+                            run.as_ref().map(|r| (r.status, r.heartbeat_unix)),
+                            now_unix,
+                            stale_after_s,
+                        );
+                        (run, state, None)
+                    }
+                    Err(why) => (None, CellState::Unreadable, Some(why)),
+                };
             if state == CellState::Running {
                 // The run's lock says at once whether its process is alive (same host) or gone.
                 let dead = match lock::holder(&run_dir, now_unix, stale_after_s) {
@@ -142,7 +137,7 @@ pub fn study_status(
                     Holder::Free => Some("no process holds its lock".to_string()),
                 };
                 // The run may have finished between the two reads: look again before calling it stale.
-                let again = read_run_json(&run_dir);
+                let again = read_run(&run_dir).ok().flatten();
                 if let (Some(why), Some(r)) = (dead, &again) {
                     if r.status == RunStatus::Running {
                         state = CellState::Stale;

@@ -1,17 +1,18 @@
 //! Trajectory-quality metrics over a joint trajectory sampled at a fixed interval: RMS and peak joint
-//! acceleration and RMS jerk by finite differences, and the effector's path length. Small pure functions,
-//! shared by the baseline checks and the replay reports, so learned policies and the baseline are measured alike.
+//! acceleration and RMS jerk by finite differences, and the effector's path length. Small pure functions for
+//! the controller checks; the RMS figures use the same definition as the episode metrics
+//! (`metrics::rms_per_joint`), so learned policies and the baseline are measured alike.
 
 use crate::sim::{Arm, JointVec};
 
 /// Quality numbers of one sampled trajectory.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
 pub struct TrajectoryMetrics {
-    /// sqrt of the time-mean of |ddq|^2 (Euclidean over joints), rad/s^2.
+    /// RMS joint acceleration: sqrt of the mean of ddq_i^2 over samples and joints, rad/s^2.
     pub rms_acceleration: f64,
     /// Largest |ddq_i| over samples and joints, rad/s^2.
     pub peak_acceleration: f64,
-    /// sqrt of the time-mean of |dddq|^2, rad/s^3.
+    /// RMS joint jerk: sqrt of the mean of dddq_i^2 over samples and joints, rad/s^3.
     pub rms_jerk: f64,
     /// Length of the effector's path, m.
     pub effector_path_length: f64,
@@ -44,14 +45,14 @@ pub fn jerks(q: &[JointVec], n: usize, dt: f64) -> Vec<JointVec> {
 }
 
 fn rms(v: &[JointVec], n: usize) -> f64 {
-    if v.is_empty() {
+    if v.is_empty() || n == 0 {
         return 0.0;
     }
     let s: f64 = v
         .iter()
         .map(|x| x[..n].iter().map(|a| a * a).sum::<f64>())
         .sum();
-    (s / v.len() as f64).sqrt()
+    super::metrics::rms_per_joint(s, v.len() as f64, n as f64)
 }
 
 /// RMS joint acceleration, rad/s^2 (0 with fewer than 3 samples).
@@ -120,13 +121,14 @@ mod tests {
         //   s'' = 60 x - 180 x^2 + 120 x^3, peak at x = 1/2 - sqrt(3)/6 equal to 10/sqrt(3) = 5.7735 (common
         //   practice constant), and int s''^2 = 3600 (1/3 - 6/4 + 13/5 - 2 + 4/7) = 3600/210 = 120/7;
         //   s''' = 60 - 360 x + 360 x^2, int s'''^2 = 3600 (1 - 6 + 16 - 18 + 36/5) = 720.
-        // So for q = D s(t/T): peak |ddq| = 5.7735 D / T^2, RMS ddq = |D| sqrt(120/7) / T^2,
-        // RMS jerk = |D| sqrt(720) / T^3.
+        // So for q = D s(t/T): peak |ddq| = 5.7735 D / T^2 and, per joint, RMS ddq_i = |D_i| sqrt(120/7) / T^2,
+        // RMS dddq_i = |D_i| sqrt(720) / T^3; the RMS over joints and samples takes the quadratic mean of
+        // |D_i| over the joints, |D|_rms = sqrt((D_1^2 + D_2^2) / 2).
         let (t, m) = (1.6, 16_000);
         let d = [1.2, -0.5];
         let q = quintic([0.1, 0.3], d, m);
         let dt = t / m as f64;
-        let dn = d[0].hypot(d[1]);
+        let dn = d[0].hypot(d[1]) / 2f64.sqrt();
         assert_relative_eq!(
             peak_acceleration(&q, 2, dt),
             10.0 / 3f64.sqrt() * 1.2 / (t * t),

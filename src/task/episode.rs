@@ -1,0 +1,257 @@
+//! One episode of the reaching task: the simulator, a reference path from the planner (with a feasibility
+//! check of the start/goal draw), the reward composer, the observation the policy sees, and the metrics.
+
+use super::metrics::{Accum, EpisodeMetrics};
+use crate::curriculum::EpisodeDraw;
+use crate::plan::connectivity::ConnectivityGrid;
+use crate::plan::{plan_path, PlanSpec, ReferencePath};
+use crate::reward::{Composer, RewardSpec};
+use crate::sim::{ArmEnv, ArmState, Scenario, Shape, StepReport, MAX_JOINTS};
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use std::sync::Arc;
+
+/// Most times an episode's start and goal are drawn again because no collision-free path joins them.
+pub const MAX_REDRAWS: usize = 50;
+
+/// How an episode's draw went: draws rejected as unsolvable, and whether the one used is still unsolved
+/// (only after `MAX_REDRAWS`).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Redraws {
+    pub redraws: usize,
+    pub unsolved: bool,
+}
+
+/// The planner settings that decide whether a start and goal are joined by a collision-free path: the
+/// episode's planner with ten times its iterations (at least 6000) and no wall-clock limit, so the decision is
+/// deterministic whatever the machine.
+pub fn feasibility_spec(plan: &PlanSpec) -> PlanSpec {
+    PlanSpec {
+        iterations: (plan.iterations.saturating_mul(10)).max(6000),
+        time_budget_ms: 1e9,
+        ..plan.clone()
+    }
+}
+
+/// One episode of the task: simulator + reference path + reward composer + metrics.
+pub struct Episode {
+    pub sim: ArmEnv,
+    pub composer: Composer,
+    plan: PlanSpec,
+    pub path: ReferencePath,
+    prev: StepReport,
+    acc: Accum,
+    path_obs: bool,
+    plan_rng: ChaCha8Rng,
+    /// Joint-space connectivity of the obstacle layouts episodes began with (two-link arms; curricula may
+    /// vary the obstacle count, so a few layouts are kept).
+    grids: Vec<(Vec<Shape>, Option<ConnectivityGrid>)>,
+}
+
+impl Episode {
+    pub fn new(
+        scenario: Arc<Scenario>,
+        reward: &RewardSpec,
+        plan: &PlanSpec,
+        gamma: f64,
+        path_obs: bool,
+    ) -> Episode {
+        let sim = ArmEnv::new(scenario);
+        let prev = sim.last_report();
+        let composer = Composer::new(reward, gamma);
+        let n = sim.n();
+        let q = sim.state().q;
+        Episode {
+            path: ReferencePath {
+                joints: vec![q; plan.waypoints.max(2)],
+                points: vec![prev.ee; plan.waypoints.max(2)],
+                fallback: false,
+            },
+            sim,
+            composer,
+            plan: plan.clone(),
+            prev,
+            acc: Accum::default(),
+            path_obs,
+            plan_rng: ChaCha8Rng::seed_from_u64(n as u64),
+            grids: Vec::new(),
+        }
+    }
+
+    /// Observation length: the simulator's plus 2 per waypoint when the policy is path-conditioned.
+    pub fn obs_dim(&self) -> usize {
+        self.sim.obs_dim()
+            + if self.path_obs {
+                2 * self.plan.waypoints
+            } else {
+                0
+            }
+    }
+
+    pub fn act_dim(&self) -> usize {
+        self.sim.n()
+    }
+
+    /// Start an episode from a draw: plan the reference path (from the nominal start), optionally move the
+    /// start onto a random waypoint, reset the simulator, the composer and the metrics. The draw is used as it
+    /// is, solvable or not (see `begin_feasible`).
+    pub fn begin(&mut self, d: &EpisodeDraw, rng: &mut ChaCha8Rng) {
+        self.sim.set_difficulty(d.obstacles, d.jump_rate);
+        self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
+        let path = plan_path(
+            &self.sim,
+            &d.start.q[..self.sim.n()],
+            d.goal,
+            &self.plan,
+            &mut self.plan_rng,
+        );
+        self.begin_with_path(d, path, rng);
+    }
+
+    /// Start an episode whose start and goal are joined by a collision-free path: draw with `draw`, plan, and
+    /// when the episode's planner finds no path, check again with a generous, deterministic budget
+    /// (`feasibility_spec`); draw again while that fails too, at most `MAX_REDRAWS` times (then the last draw
+    /// is used and counted as unsolved). Feasibility is checked at the start of the episode, with the obstacles
+    /// where they begin: with moving obstacles or goal jumps a later replan may still find no path. Returns the
+    /// number of redraws.
+    pub fn begin_feasible(
+        &mut self,
+        draw: &mut dyn FnMut(&ArmEnv, &mut ChaCha8Rng) -> EpisodeDraw,
+        rng: &mut ChaCha8Rng,
+    ) -> Redraws {
+        let n = self.sim.n();
+        let mut redraws = Redraws::default();
+        loop {
+            let d = draw(&self.sim, rng);
+            self.sim.set_difficulty(d.obstacles, d.jump_rate);
+            self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
+            if !self.may_connect(&d) && redraws.redraws < MAX_REDRAWS {
+                redraws.redraws += 1;
+                continue;
+            }
+            let mut path = plan_path(
+                &self.sim,
+                &d.start.q[..n],
+                d.goal,
+                &self.plan,
+                &mut self.plan_rng,
+            );
+            if path.fallback {
+                let generous = feasibility_spec(&self.plan);
+                path = plan_path(
+                    &self.sim,
+                    &d.start.q[..n],
+                    d.goal,
+                    &generous,
+                    &mut self.plan_rng,
+                );
+            }
+            if !path.fallback || redraws.redraws >= MAX_REDRAWS {
+                redraws.unsolved = path.fallback;
+                self.begin_with_path(&d, path, rng);
+                return redraws;
+            }
+            redraws.redraws += 1;
+        }
+    }
+
+    /// False when the joint-space grid (two-link arms) shows the draw's start and goal in different free
+    /// regions: no collision-free path, so no planning is spent on it. True otherwise.
+    fn may_connect(&mut self, d: &EpisodeDraw) -> bool {
+        let layout = self.sim.obstacles();
+        let k = match self.grids.iter().position(|(l, _)| l.as_slice() == layout) {
+            Some(k) => k,
+            None => {
+                if self.grids.len() >= 8 {
+                    self.grids.remove(0);
+                }
+                let g = ConnectivityGrid::build(&self.sim, self.plan.clearance_margin);
+                self.grids.push((layout.to_vec(), g));
+                self.grids.len() - 1
+            }
+        };
+        match &self.grids[k].1 {
+            Some(g) => g.may_connect(&self.sim, &d.start.q, d.goal),
+            None => true,
+        }
+    }
+
+    fn begin_with_path(&mut self, d: &EpisodeDraw, path: ReferencePath, rng: &mut ChaCha8Rng) {
+        let mut start = d.start;
+        if d.start_on_path && path.joints.len() > 1 {
+            let k = rng.gen_range(0..path.joints.len() - 1);
+            let cand = ArmState::at_rest(&path.joints[k][..self.sim.n()]);
+            if self.sim.config_free(&cand.q) {
+                start = cand;
+            }
+        }
+        let first = self.sim.reset(start, d.goal, rng.gen());
+        self.acc = Accum {
+            min_clearance: first.min_clearance,
+            fallbacks: path.fallback as usize,
+            ..Accum::default()
+        };
+        self.path = path;
+        self.composer.reset(&first, Some(&self.path));
+        self.prev = first;
+    }
+
+    /// Apply a normalised action in [-1, 1]^n; returns the report, the reward and whether the episode is terminal.
+    pub fn step(&mut self, action: &[f32]) -> (StepReport, f64, bool) {
+        let n = self.sim.n();
+        let mut u = [0.0; MAX_JOINTS];
+        for i in 0..n {
+            u[i] = action[i].clamp(-1.0, 1.0) as f64 * self.sim.action_limits()[i];
+        }
+        let now = self.sim.step(&u[..n]);
+        if now.goal_jumped || now.obstacle_moved {
+            let path = plan_path(
+                &self.sim,
+                &now.q[..n],
+                now.goal,
+                &self.plan,
+                &mut self.plan_rng,
+            );
+            self.acc.replans += 1;
+            self.acc.fallbacks += path.fallback as usize;
+            self.path = path;
+            self.sim.mark_planned();
+            self.composer.set_path(Some(&self.path));
+        }
+        let r = self.composer.step(&self.prev, &now);
+        let terminal = self.composer.ends_episode(&now);
+        let deviation = self.path.polyline().project(now.ee).distance;
+        let dt = self.sim.scenario().control_dt();
+        self.acc.record(&now, n, dt, r, deviation);
+        self.prev = now;
+        (now, r, terminal)
+    }
+
+    /// Replans so far in this episode.
+    pub fn replans(&self) -> usize {
+        self.acc.replans
+    }
+
+    /// Metrics of the episode so far.
+    pub fn metrics(&self) -> EpisodeMetrics {
+        self.acc.metrics(self.sim.n(), self.composer.episode_sums())
+    }
+
+    /// Write the observation: the simulator's, then the next K waypoints relative to the effector (scaled by reach).
+    pub fn observe(&self, out: &mut [f32]) {
+        let d = self.sim.obs_dim();
+        self.sim.observe(&mut out[..d]);
+        if !self.path_obs {
+            return;
+        }
+        let ee = self.prev.ee;
+        let reach = self.sim.scenario().arm.reach();
+        let pts = &self.path.points;
+        let seg = self.path.polyline().project(ee).segment;
+        for k in 0..self.plan.waypoints {
+            let p = pts[(seg + 1 + k).min(pts.len() - 1)];
+            out[d + 2 * k] = ((p[0] - ee[0]) / reach) as f32;
+            out[d + 2 * k + 1] = ((p[1] - ee[1]) / reach) as f32;
+        }
+    }
+}
