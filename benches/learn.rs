@@ -6,7 +6,7 @@
 //! loss-and-gradients at several minibatch sizes by both paths.
 
 #[allow(dead_code)] // shared with the tests; the bench uses part of it
-#[path = "../tests/common/reach_env.rs"]
+#[path = "../tests/all/common/reach_env.rs"]
 mod reach_env;
 
 use std::hint::black_box;

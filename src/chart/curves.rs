@@ -116,6 +116,9 @@ impl Chart for LearningCurves<'_> {
     fn stem(&self) -> &'static str {
         "learning_curves"
     }
+    fn caption(&self) -> &'static str {
+        "IQM across seeds per variant with a shaded bootstrap confidence band; faint lines are single seeds; the classical controller is a flat dashed line with a band over its evaluation episodes. Top row, side by side: clean success (goal reached with no contact — read this first: the earlier a curve crosses the dotted threshold, the faster the variant learns), reached rate (contact allowed) and collision rate. A gap between reached and clean success is the share of episodes that got there by touching something. Bottom row: return, time to goal and joint acceleration."
+    }
     fn size(&self) -> (u32, u32) {
         (1800, 1040)
     }
@@ -151,6 +154,9 @@ impl Chart for LearningCurves<'_> {
 impl Chart for CurriculumChart<'_> {
     fn stem(&self) -> &'static str {
         "curriculum"
+    }
+    fn caption(&self) -> &'static str {
+        "Start-state difficulty over training for variants with a curriculum; a curve that stalls below 1 means the policy never mastered the full task distribution."
     }
     fn size(&self) -> (u32, u32) {
         (1100, 620)

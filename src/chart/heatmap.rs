@@ -131,6 +131,9 @@ impl Chart for GridHeatmap<'_> {
     fn stem(&self) -> &'static str {
         "grid_sensitivity"
     }
+    fn caption(&self) -> &'static str {
+        "Variants generated from a grid over two reward weights: IQM steps to threshold (left) and IQM final success (right). Dark cells are good; a sharp light/dark edge marks the sensitive region."
+    }
     fn size(&self) -> (u32, u32) {
         let h = 260 + 90 * self.layout.ys.len().max(2) as u32;
         (1400, h.min(1400))

@@ -50,6 +50,9 @@ impl Chart for TermChart<'_> {
     fn stem(&self) -> &'static str {
         "reward_terms"
     }
+    fn caption(&self) -> &'static str {
+        "Mean per-episode contribution of each reward term over training. The term with the largest magnitude drives the return; a term that grows while success stays flat is a candidate for being gamed."
+    }
     fn size(&self) -> (u32, u32) {
         (
             1400,
@@ -162,6 +165,9 @@ pub struct ShapingChart<'a> {
 impl Chart for ShapingChart<'_> {
     fn stem(&self) -> &'static str {
         "shaping_check"
+    }
+    fn caption(&self) -> &'static str {
+        "Shaped return (solid) against task success (dotted, right axis) per variant. Return and success should rise together; a red frame marks a variant whose return kept rising after its success peaked and fell."
     }
     fn size(&self) -> (u32, u32) {
         (

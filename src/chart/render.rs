@@ -11,6 +11,8 @@ use std::path::{Path, PathBuf};
 pub trait Chart {
     /// File stem, e.g. `learning_curves`.
     fn stem(&self) -> &'static str;
+    /// What the chart answers, printed under it in the report (plain text).
+    fn caption(&self) -> &'static str;
     /// Pixel size (width, height).
     fn size(&self) -> (u32, u32);
     /// Draw on a white root area of `size()`.
@@ -28,6 +30,8 @@ pub struct ChartFiles {
     pub png: PathBuf,
     /// The SVG text (inlined in report.html).
     pub svg_text: String,
+    /// The chart's caption (`Chart::caption`).
+    pub caption: String,
 }
 
 /// Render `chart` into `charts_dir/<stem>.svg` and `.png`.
@@ -70,5 +74,6 @@ pub fn render<C: Chart>(chart: &C, charts_dir: &Path) -> Result<ChartFiles, Char
         svg,
         png,
         svg_text,
+        caption: chart.caption().to_string(),
     })
 }

@@ -29,6 +29,9 @@ impl Chart for ThresholdChart<'_> {
     fn stem(&self) -> &'static str {
         "steps_to_threshold"
     }
+    fn caption(&self) -> &'static str {
+        "Steps to reach the success threshold per variant, fastest first: diamond = IQM, bar = confidence interval, dots = single runs, open triangles at the budget = runs that never reached it (censored; their true value is larger than the budget). Overlapping bars mean the data do not separate the variants."
+    }
     fn size(&self) -> (u32, u32) {
         (1300, 160 + 52 * self.rows().len().max(1) as u32)
     }

@@ -58,7 +58,7 @@ pub struct BaselineSpec {
     /// m, > 0: it must cover the controller's tracking error. It also replans from where it is when its clearance
     /// falls below half of this. When no route keeps it, the margin is halved down to the planner's
     /// `plan.clearance_margin`. Default 0.02: the largest tracking deviation of any joint point of the arm from its
-    /// timed reference over the quickstart's 30 evaluation episodes measured 2.2 mm (`tests/control_route.rs`);
+    /// timed reference over the quickstart's 30 evaluation episodes measured 2.2 mm (`tests/all/control_route.rs`);
     /// the spline through the route's corners is accepted when it keeps half the margin, so 0.02 leaves 1 cm for
     /// it and a factor of about 4 over the tracking deviation (our choice, no published source).
     pub clearance: f64,

@@ -50,7 +50,7 @@ impl Phi {
 ///
 /// At a terminal transition Phi(s') is taken as 0. Ng et al. assume absorbing terminal states; setting the
 /// potential of the absorbing state to 0 is the common practice for episodic tasks and still a potential
-/// function, so the policy-invariance guarantee carries over (checked in tests/reward_shaping.rs).
+/// function, so the policy-invariance guarantee carries over (checked in tests/all/reward_shaping.rs).
 #[inline]
 pub fn shaping(gamma: f64, phi_prev: f64, phi_next: f64, terminal: bool) -> f64 {
     let next = if terminal { 0.0 } else { phi_next };

@@ -2,12 +2,10 @@
 //! 5 cm tolerance, 200-step episodes; reward = goal bonus + time cost + dense distance): the
 //! deterministic policy's success on 100 held-out episodes (their own seed), evaluated after every
 //! iteration, with a fixed training seed, the learner's default settings and a 300k
-//! environment-step budget. Run with `cargo test --release --test learn_reach -- --nocapture` to
+//! environment-step budget. Run with `cargo test --release --test all learn_reach:: -- --nocapture` to
 //! see the learning curve and the step count at which success first reaches 90%.
 
-mod common;
-
-use common::reach_env::{reach_envs, success_rate, Goals};
+use crate::common::reach_env::{reach_envs, success_rate, Goals};
 use termwise::learn::{NoObserver, PpoConfig, Trainer};
 
 const BUDGET: u64 = 300_000;

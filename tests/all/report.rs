@@ -1,10 +1,8 @@
 //! Integration tests of the analysis → chart → report path on the fixture results folder
-//! (tests/fixtures/study-small, synthetic test data from tests/support/fixture.rs), and of the
+//! (tests/fixtures/study-small, synthetic test data from tests/all/support/fixture.rs), and of the
 //! `termwise report` command's exit codes.
 
-mod support {
-    pub mod fixture;
-}
+use crate::support;
 
 use std::path::{Path, PathBuf};
 use termwise::analysis::{load_study, summarize, AnalysisOptions, RunStatus};
@@ -47,7 +45,7 @@ fn copy_tree(from: &Path, to: &Path) {
 }
 
 /// The committed fixture is exactly what the seeded generator writes. Regenerate with
-/// `TERMWISE_WRITE_FIXTURE=1 cargo test --release --test report fixture`.
+/// `TERMWISE_WRITE_FIXTURE=1 cargo test --release --test all report::fixture`.
 #[test]
 fn fixture_matches_its_seeded_generator() {
     if std::env::var_os("TERMWISE_WRITE_FIXTURE").is_some() {
@@ -88,7 +86,7 @@ fn loading_counts_every_run_status_and_keeps_missing_runs() {
             .unwrap()
             .status
     };
-    // The odd runs declared in tests/support/fixture.rs.
+    // The odd runs declared in tests/all/support/fixture.rs.
     assert_eq!(status("no-progress-term", 3), RunStatus::Diverged);
     assert_eq!(status("reverse-curriculum", 2), RunStatus::Missing);
     assert_eq!(status("reverse-curriculum", 4), RunStatus::Interrupted);

@@ -1,0 +1,473 @@
+//! The study summary: learning curves across seeds with confidence bands, per-variant aggregates of
+//! the per-run figures, comparisons against the reference variant, run status, and the
+//! reward-gaming check. Everything the charts and the report draw comes from here.
+
+use super::bootstrap::{
+    bootstrap_distribution, percentile_interval, stratified_bootstrap, stream_seed, BootstrapSpec,
+    Estimate,
+};
+use super::compare::{mann_whitney, normal_quantile, probability_of_improvement, MannWhitney};
+use super::load::{StudyResults, VariantRuns};
+use super::run_metrics::{run_metrics, RunContext, RunMetrics, Threshold};
+use super::stats::{finite, iqm, mean, sample_std, wilson_interval};
+use crate::results::{EvalRow, RunStatus, StudyRecord, VariantKind, VariantRecord};
+use std::collections::BTreeMap;
+
+mod checks;
+#[cfg(test)]
+mod tests;
+mod types;
+#[allow(unused_imports)]
+pub use checks::*;
+#[allow(unused_imports)]
+pub use types::*;
+
+const TAG_CURVE_MEAN: u64 = 1;
+const TAG_CURVE_IQM: u64 = 2;
+const TAG_AGG_IQM: u64 = 3;
+const TAG_AGG_MEAN: u64 = 4;
+const TAG_STEPS: u64 = 5;
+const TAG_POI_SUCCESS: u64 = 6;
+const TAG_POI_STEPS: u64 = 7;
+const TAG_EFFECT_STEPS: u64 = 30;
+const TAG_EFFECT_SUCCESS: u64 = 31;
+const TAG_EFFECT_AUC: u64 = 32;
+const TAG_EFFECT_COLLISION: u64 = 33;
+const TAG_GROUP_STEPS: u64 = 40;
+const TAG_GROUP_SUCCESS: u64 = 41;
+
+/// Summarise a loaded study.
+pub fn summarize(results: &StudyResults, opts: &AnalysisOptions) -> StudySummary {
+    let study = &results.study;
+    let reference = if study.reference_variant.is_empty() {
+        study.variants[0].name.clone()
+    } else {
+        study.reference_variant.clone()
+    };
+    let mut variants: Vec<VariantSummary> = results
+        .variants
+        .iter()
+        .enumerate()
+        .map(|(i, v)| summarize_variant(i, v, study, opts))
+        .collect();
+    let ref_runs = variants
+        .iter()
+        .find(|v| v.info.name == reference && v.info.kind == VariantKind::Learned)
+        .map(|v| v.runs.clone());
+    // Baselines get no p-value or probability of improvement: one deterministic run is not a
+    // sample of seeds. They are compared through their episode-level intervals instead.
+    if let Some(ref_runs) = ref_runs {
+        for v in variants.iter_mut() {
+            if v.info.name != reference && v.info.kind == VariantKind::Learned {
+                v.vs_reference = Some(compare(v.index, &v.runs, &ref_runs, opts));
+            }
+        }
+    }
+    let mut status = StatusCounts::default();
+    for v in &variants {
+        for s in RunStatus::ALL {
+            for _ in 0..v.status.get(s) {
+                status.add(s);
+            }
+        }
+    }
+    let mut summary = StudySummary {
+        study: study.clone(),
+        reference,
+        options: *opts,
+        variants,
+        status,
+        group_confidence: opts.confidence,
+        seeds_needed: None,
+        gap: None,
+    };
+    assign_groups(&mut summary);
+    summary.seeds_needed = seeds_needed(&summary);
+    summary
+}
+
+fn steps_of(runs: &[RunMetrics]) -> Vec<f64> {
+    runs.iter()
+        .filter_map(|m| m.steps_to_threshold.rank_value())
+        .collect()
+}
+
+fn success_of(runs: &[RunMetrics]) -> Vec<f64> {
+    finite(runs.iter().filter_map(|m| m.final_success))
+}
+
+/// IQM ratio b / a of two samples (NaN when a's IQM is not positive).
+fn iqm_ratio(s: &[Vec<f64>]) -> f64 {
+    let d = iqm(&s[0]);
+    if d > 0.0 {
+        iqm(&s[1]) / d
+    } else {
+        f64::NAN
+    }
+}
+
+/// Rank groups. Walk the ranking best first; each variant joins the group of the best variant
+/// above it that heads a group (the group's leader) unless the data separate them: the
+/// stratified bootstrap interval of its steps-to-threshold ratio to the leader lies entirely above
+/// 1, or the interval of its final clean success minus the leader's lies entirely below 0.
+/// Intervals are at the study's confidence, Bonferroni-adjusted for the number of comparisons
+/// (Dunn, "Multiple comparisons among means", JASA 1961).
+fn assign_groups(s: &mut StudySummary) {
+    let order: Vec<usize> = s
+        .ranking()
+        .into_iter()
+        .filter(|&i| s.variants[i].steps_to_threshold.iqm.point.is_finite())
+        .collect();
+    let comparisons = order.len().saturating_sub(1).max(1);
+    let level = 1.0 - (1.0 - s.options.confidence) / comparisons as f64;
+    s.group_confidence = level;
+    let mut leader: Option<usize> = None;
+    let mut group = 0usize;
+    let mut gap = None;
+    for &i in &order {
+        let Some(l) = leader else {
+            leader = Some(i);
+            s.variants[i].group = Some(0);
+            continue;
+        };
+        let (a, b) = (&s.variants[l].runs, &s.variants[i].runs);
+        let seed = |tag| stream_seed(s.options.seed, &[l as u64, i as u64, tag]);
+        let ratio = bootstrap_distribution(
+            &[&steps_of(a), &steps_of(b)],
+            iqm_ratio,
+            s.options.resamples,
+            seed(TAG_GROUP_STEPS),
+        )
+        .map(|(p, v)| percentile_interval(p, &v, level))
+        .unwrap_or(Estimate::NONE);
+        let diff = bootstrap_distribution(
+            &[&success_of(a), &success_of(b)],
+            |x| iqm(&x[1]) - iqm(&x[0]),
+            s.options.resamples,
+            seed(TAG_GROUP_SUCCESS),
+        )
+        .map(|(p, v)| percentile_interval(p, &v, level))
+        .unwrap_or(Estimate::NONE);
+        let slower = ratio.lo.is_finite() && ratio.lo > 1.0;
+        let less_success = diff.hi.is_finite() && diff.hi < 0.0;
+        if slower || less_success {
+            group += 1;
+            leader = Some(i);
+            if group == 1 {
+                // The first split is always against the overall leader.
+                gap = Some((l, i, ratio));
+            }
+        }
+        s.variants[i].group = Some(group);
+    }
+    s.gap = gap;
+}
+
+/// How many seeds per variant would separate the top two ranked variants on steps-to-threshold:
+/// with d the observed log IQM ratio and sd its bootstrap standard deviation at n seeds, the
+/// standard error shrinks as 1/sqrt(n), so a two-sided test at the study's confidence reaches the
+/// aimed power at n' = n ((z_{1-alpha/2} + z_power) sd / |d|)^2 (the usual normal-approximation
+/// sample-size formula, e.g. Chow, Shao, Wang, "Sample Size Calculations in Clinical Research",
+/// 2008, Sec. 3.2). An estimate: it assumes the observed difference and spread are the true ones.
+fn seeds_needed(s: &StudySummary) -> Option<SeedsNeeded> {
+    let order: Vec<usize> = s
+        .ranking()
+        .into_iter()
+        .filter(|&i| s.variants[i].steps_to_threshold.iqm.point.is_finite())
+        .collect();
+    let (&first, &second) = (order.first()?, order.get(1)?);
+    let (a, b) = (
+        steps_of(&s.variants[first].runs),
+        steps_of(&s.variants[second].runs),
+    );
+    let (point, values) = bootstrap_distribution(
+        &[&a, &b],
+        |x| iqm_ratio(x).ln(),
+        s.options.resamples,
+        stream_seed(s.options.seed, &[first as u64, second as u64, 50]),
+    )?;
+    let sd = sample_std(&values);
+    let seeds_now = a.len().min(b.len());
+    let z = normal_quantile(0.5 + s.options.confidence / 2.0) + normal_quantile(s.options.power);
+    let seeds = if point.is_finite() && point.abs() > 1e-12 && sd.is_finite() {
+        let n = seeds_now as f64 * (z * sd / point.abs()).powi(2);
+        Some(n.ceil().clamp(2.0, 1e6) as usize)
+    } else {
+        None
+    };
+    Some(SeedsNeeded {
+        first,
+        second,
+        seeds_now,
+        log_ratio: point,
+        sd,
+        seeds,
+    })
+}
+
+/// How a learned variant's interval stands against the baseline's on one figure. `higher_better`
+/// says which side is better. A baseline figure without an interval is compared as a point.
+pub fn verdict(learned: &Estimate, baseline: &Estimate, higher_better: bool) -> Option<Verdict> {
+    if !learned.lo.is_finite() || !baseline.point.is_finite() {
+        return None;
+    }
+    let (blo, bhi) = if baseline.lo.is_finite() {
+        (baseline.lo, baseline.hi)
+    } else {
+        (baseline.point, baseline.point)
+    };
+    let above = learned.lo > bhi;
+    let below = learned.hi < blo;
+    Some(match (above, below, higher_better) {
+        (true, _, true) | (_, true, false) => Verdict::Better,
+        (true, _, false) | (_, true, true) => Verdict::Worse,
+        _ => Verdict::Unclear,
+    })
+}
+
+fn summarize_variant(
+    index: usize,
+    v: &VariantRuns,
+    study: &StudyRecord,
+    opts: &AnalysisOptions,
+) -> VariantSummary {
+    let ctx = RunContext {
+        budget_steps: study.budget_steps,
+        success_threshold: study.success_threshold,
+        final_window: study.final_window as usize,
+        kind: v.info.kind,
+    };
+    let mut status = StatusCounts::default();
+    for r in &v.runs {
+        status.add(r.status);
+    }
+    let runs: Vec<RunMetrics> = v.runs.iter().map(|r| run_metrics(r, &ctx)).collect();
+    let curves = CurveMetric::ALL
+        .iter()
+        .enumerate()
+        .map(|(k, &metric)| (metric, curve(index, k as u64, v, metric, opts)))
+        .collect::<BTreeMap<_, _>>();
+    let seed_curves = v
+        .runs
+        .iter()
+        .filter(|r| !r.progress.is_empty())
+        .map(|r| SeedCurve {
+            seed: r.seed,
+            status: r.status,
+            rows: r.progress.clone(),
+        })
+        .collect();
+    let agg = |k: u64, f: fn(&RunMetrics) -> Option<f64>| aggregate(index, k, &runs, f, opts);
+    let gaming = gaming_check(&curves, study.final_window as usize, opts);
+    let crashing = crash_check(&curves, study.final_window as usize, opts);
+    let mut final_success = agg(11, |m| m.final_success);
+    let mut final_reached = agg(20, |m| m.final_reached);
+    let mut final_collision = agg(21, |m| m.final_collision);
+    let episode_level = if v.info.kind == VariantKind::Baseline && study.eval_episodes > 0 {
+        episode_level(&runs, study.eval_episodes as u64, opts.confidence)
+    } else {
+        None
+    };
+    if let Some(e) = &episode_level {
+        for (a, est) in [
+            (&mut final_success, e.success),
+            (&mut final_reached, e.reached),
+            (&mut final_collision, e.collision),
+        ] {
+            a.iqm = est;
+            a.mean = est;
+        }
+    }
+    VariantSummary {
+        steps_to_threshold: threshold_aggregate(index, &runs, opts),
+        auc: agg(10, |m| m.auc),
+        final_success,
+        final_reached,
+        final_collision,
+        episode_steps: agg(22, |m| m.episode_steps),
+        episode_level,
+        final_return: agg(12, |m| m.final_return),
+        time_to_goal: agg(13, |m| m.time_to_goal),
+        rms_joint_acc: agg(14, |m| m.rms_joint_acc),
+        peak_joint_acc: agg(15, |m| m.peak_joint_acc),
+        rms_jerk: agg(16, |m| m.rms_jerk),
+        path_length: agg(17, |m| m.path_length),
+        min_clearance: agg(18, |m| m.min_clearance),
+        replans: agg(19, |m| m.replans),
+        info: v.info.clone(),
+        index,
+        status,
+        curves,
+        seed_curves,
+        terms: term_curves(v),
+        runs,
+        vs_reference: None,
+        gaming,
+        crashing,
+        group: None,
+    }
+}
+
+/// Wilson intervals of the baseline's proportions over its evaluation episodes (first finished
+/// run; its final window is one evaluation of `episodes` episodes).
+fn episode_level(runs: &[RunMetrics], episodes: u64, confidence: f64) -> Option<EpisodeLevel> {
+    let m = runs.iter().find(|m| m.final_success.is_some())?;
+    let n = episodes as f64;
+    let est = |p: Option<f64>| match p {
+        Some(p) => {
+            // The rate is a count out of n episodes; round to undo the printed decimals.
+            let k = (p * n).round();
+            let (lo, hi) = wilson_interval(k, n, confidence);
+            Estimate { point: p, lo, hi }
+        }
+        None => Estimate::NONE,
+    };
+    Some(EpisodeLevel {
+        episodes,
+        success: est(m.final_success),
+        reached: est(m.final_reached),
+        collision: est(m.final_collision),
+    })
+}
+
+/// Across-seed mean and IQM with CIs at every evaluation step present in any run.
+fn curve(
+    index: usize,
+    metric_tag: u64,
+    v: &VariantRuns,
+    metric: CurveMetric,
+    opts: &AnalysisOptions,
+) -> Curve {
+    let mut by_step: BTreeMap<u64, Vec<f64>> = BTreeMap::new();
+    for r in &v.runs {
+        for row in &r.progress {
+            let entry = by_step.entry(row.env_steps).or_default();
+            let x = metric.of(row);
+            if x.is_finite() {
+                entry.push(x);
+            }
+        }
+    }
+    let mut steps = Vec::with_capacity(by_step.len());
+    let mut points = Vec::with_capacity(by_step.len());
+    for (k, (step, xs)) in by_step.into_iter().enumerate() {
+        let labels = |tag| stream_seed(opts.seed, &[index as u64, metric_tag, k as u64, tag]);
+        steps.push(step);
+        points.push(PointStat {
+            n: xs.len(),
+            mean: stratified_bootstrap(
+                &[&xs],
+                |s| mean(&s[0]),
+                opts.spec(),
+                labels(TAG_CURVE_MEAN),
+            ),
+            iqm: stratified_bootstrap(&[&xs], |s| iqm(&s[0]), opts.spec(), labels(TAG_CURVE_IQM)),
+        });
+    }
+    Curve { steps, points }
+}
+
+fn aggregate(
+    index: usize,
+    tag: u64,
+    runs: &[RunMetrics],
+    f: fn(&RunMetrics) -> Option<f64>,
+    opts: &AnalysisOptions,
+) -> Aggregate {
+    let xs = finite(runs.iter().filter_map(f));
+    let seed = |t| stream_seed(opts.seed, &[index as u64, tag, t]);
+    Aggregate {
+        n: xs.len(),
+        iqm: stratified_bootstrap(&[&xs], |s| iqm(&s[0]), opts.spec(), seed(TAG_AGG_IQM)),
+        mean: stratified_bootstrap(&[&xs], |s| mean(&s[0]), opts.spec(), seed(TAG_AGG_MEAN)),
+    }
+}
+
+fn threshold_aggregate(
+    index: usize,
+    runs: &[RunMetrics],
+    opts: &AnalysisOptions,
+) -> ThresholdAggregate {
+    let mut reached = 0;
+    let mut censored = 0;
+    let mut pending = 0;
+    for m in runs {
+        match m.steps_to_threshold {
+            Threshold::Reached(_) => reached += 1,
+            Threshold::Censored(_) => censored += 1,
+            Threshold::Pending if m.status != RunStatus::Missing => pending += 1,
+            _ => {}
+        }
+    }
+    let xs: Vec<f64> = runs
+        .iter()
+        .filter_map(|m| m.steps_to_threshold.rank_value())
+        .collect();
+    let cut = xs.len() / 4;
+    ThresholdAggregate {
+        iqm: stratified_bootstrap(
+            &[&xs],
+            |s| iqm(&s[0]),
+            opts.spec(),
+            stream_seed(opts.seed, &[index as u64, TAG_STEPS]),
+        ),
+        reached,
+        censored,
+        pending,
+        lower_bound: censored > cut,
+    }
+}
+
+fn compare(index: usize, x: &[RunMetrics], y: &[RunMetrics], opts: &AnalysisOptions) -> Comparison {
+    let success = |r: &[RunMetrics]| finite(r.iter().filter_map(|m| m.final_success));
+    // Fewer steps is better: negate so that "greater" means "better" for P(X > Y).
+    let steps = |r: &[RunMetrics]| -> Vec<f64> {
+        r.iter()
+            .filter_map(|m| m.steps_to_threshold.rank_value())
+            .map(|s| -s)
+            .collect()
+    };
+    let (sx, sy) = (success(x), success(y));
+    let (tx, ty) = (steps(x), steps(y));
+    let poi = |a: &[f64], b: &[f64], tag| {
+        stratified_bootstrap(
+            &[a, b],
+            |s| probability_of_improvement(&s[0], &s[1]),
+            opts.spec(),
+            stream_seed(opts.seed, &[index as u64, tag]),
+        )
+    };
+    let pair = |a: &[f64], b: &[f64], tag, f: fn(&[Vec<f64>]) -> f64| {
+        stratified_bootstrap(
+            &[a, b],
+            f,
+            opts.spec(),
+            stream_seed(opts.seed, &[index as u64, tag]),
+        )
+    };
+    let auc = |r: &[RunMetrics]| finite(r.iter().filter_map(|m| m.auc));
+    let coll = |r: &[RunMetrics]| finite(r.iter().filter_map(|m| m.final_collision));
+    let diff: fn(&[Vec<f64>]) -> f64 = |s| iqm(&s[0]) - iqm(&s[1]);
+    // Ratio this / reference: the reference is the second stratum.
+    let ratio: fn(&[Vec<f64>]) -> f64 = |s| {
+        let d = iqm(&s[1]);
+        if d > 0.0 {
+            iqm(&s[0]) / d
+        } else {
+            f64::NAN
+        }
+    };
+    let effects = Effects {
+        steps_ratio: pair(&steps_of(x), &steps_of(y), TAG_EFFECT_STEPS, ratio),
+        success_diff: pair(&sx, &sy, TAG_EFFECT_SUCCESS, diff),
+        auc_diff: pair(&auc(x), &auc(y), TAG_EFFECT_AUC, diff),
+        collision_diff: pair(&coll(x), &coll(y), TAG_EFFECT_COLLISION, diff),
+    };
+    Comparison {
+        effects,
+        poi_final_success: poi(&sx, &sy, TAG_POI_SUCCESS),
+        poi_steps: poi(&tx, &ty, TAG_POI_STEPS),
+        mw_final_success: mann_whitney(&sx, &sy),
+        mw_steps: mann_whitney(&tx, &ty),
+    }
+}

@@ -1,0 +1,447 @@
+//! The summary's types: analysis settings, run-status counts, curves, aggregates, comparisons, flags, verdicts and the per-variant and per-study summaries.
+
+#[allow(unused_imports)]
+use super::*;
+
+/// Analysis settings.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct AnalysisOptions {
+    /// Bootstrap resamples per interval (default 2000).
+    pub resamples: usize,
+    /// Two-sided confidence level of every interval (default 0.95).
+    pub confidence: f64,
+    /// Seed of the bootstrap streams (default 0).
+    pub seed: u64,
+    /// Reward-gaming check: success must fall by at least this much (absolute success rate) from
+    /// its peak to the final window (default 0.1).
+    pub gaming_success_drop: f64,
+    /// Reward-gaming check: return must rise over the same stretch by at least this fraction of the
+    /// return curve's range (default 0.05).
+    pub gaming_return_rise: f64,
+    /// Crash check: the collision rate must rise by at least this much (absolute rate) from the
+    /// evaluation with the longest episodes to the final window (default 0.1).
+    pub crash_collision_rise: f64,
+    /// Crash check: mean episode length must fall over the same stretch by at least this fraction
+    /// of its longest value (default 0.1).
+    pub crash_length_drop: f64,
+    /// Statistical power the seeds-needed estimate aims at (default 0.8).
+    pub power: f64,
+}
+
+impl Default for AnalysisOptions {
+    fn default() -> Self {
+        Self {
+            resamples: 2000,
+            confidence: 0.95,
+            seed: 0,
+            gaming_success_drop: 0.1,
+            gaming_return_rise: 0.05,
+            crash_collision_rise: 0.1,
+            crash_length_drop: 0.1,
+            power: 0.8,
+        }
+    }
+}
+
+impl AnalysisOptions {
+    pub(super) fn spec(&self) -> BootstrapSpec {
+        BootstrapSpec {
+            resamples: self.resamples,
+            confidence: self.confidence,
+        }
+    }
+}
+
+/// Count of runs by status.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize)]
+pub struct StatusCounts {
+    /// Finished at the budget.
+    pub done: usize,
+    /// Stopped by non-finite numbers.
+    pub diverged: usize,
+    /// Stopped early.
+    pub interrupted: usize,
+    /// Still running (or died without a final status).
+    pub running: usize,
+    /// Not started / no run.json.
+    pub missing: usize,
+}
+
+impl StatusCounts {
+    /// Add one run.
+    pub fn add(&mut self, s: RunStatus) {
+        match s {
+            RunStatus::Done => self.done += 1,
+            RunStatus::Diverged => self.diverged += 1,
+            RunStatus::Interrupted => self.interrupted += 1,
+            RunStatus::Running => self.running += 1,
+            RunStatus::Missing => self.missing += 1,
+        }
+    }
+    /// Count for one status.
+    pub fn get(&self, s: RunStatus) -> usize {
+        match s {
+            RunStatus::Done => self.done,
+            RunStatus::Diverged => self.diverged,
+            RunStatus::Interrupted => self.interrupted,
+            RunStatus::Running => self.running,
+            RunStatus::Missing => self.missing,
+        }
+    }
+    /// All planned runs.
+    pub fn total(&self) -> usize {
+        self.done + self.diverged + self.interrupted + self.running + self.missing
+    }
+}
+
+/// Across-seed statistics at one evaluation step.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PointStat {
+    /// Runs with a finite value at this step.
+    pub n: usize,
+    /// Mean with bootstrap CI.
+    pub mean: Estimate,
+    /// IQM with bootstrap CI.
+    pub iqm: Estimate,
+}
+
+/// One learning-curve metric of a variant.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Curve {
+    /// Env steps of each point.
+    pub steps: Vec<u64>,
+    /// Statistics at each step.
+    pub points: Vec<PointStat>,
+}
+
+/// The metrics drawn against env steps.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum CurveMetric {
+    /// Clean success rate (goal reached, no contact), fraction.
+    Success,
+    /// Mean shaped return.
+    Return,
+    /// Time to goal, s.
+    TimeToGoal,
+    /// RMS joint acceleration, rad/s^2.
+    RmsJointAcc,
+    /// Curriculum difficulty, [0, 1].
+    CurriculumLevel,
+    /// Reached rate (goal reached, contact allowed), fraction.
+    Reached,
+    /// Collision rate (episodes with any contact), fraction.
+    Collision,
+    /// Mean episode length, control steps.
+    EpisodeSteps,
+}
+
+impl CurveMetric {
+    /// All curve metrics (new ones go at the end: the position labels each bootstrap stream).
+    pub const ALL: [CurveMetric; 8] = [
+        CurveMetric::Success,
+        CurveMetric::Return,
+        CurveMetric::TimeToGoal,
+        CurveMetric::RmsJointAcc,
+        CurveMetric::CurriculumLevel,
+        CurveMetric::Reached,
+        CurveMetric::Collision,
+        CurveMetric::EpisodeSteps,
+    ];
+
+    /// Value of this metric in a progress row.
+    pub fn of(self, r: &EvalRow) -> f64 {
+        match self {
+            CurveMetric::Success => r.success_rate,
+            CurveMetric::Return => r.mean_return,
+            CurveMetric::TimeToGoal => r.time_to_goal,
+            CurveMetric::RmsJointAcc => r.rms_joint_acc,
+            CurveMetric::CurriculumLevel => r.curriculum_level,
+            CurveMetric::Reached => r.reached_rate,
+            CurveMetric::Collision => r.collision_rate,
+            CurveMetric::EpisodeSteps => r.episode_steps,
+        }
+    }
+}
+
+/// One seed's raw curve (for faint per-seed lines).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SeedCurve {
+    /// Seed.
+    pub seed: u64,
+    /// Run status.
+    pub status: RunStatus,
+    /// evaluations.csv rows.
+    pub rows: Vec<EvalRow>,
+}
+
+/// Mean per-episode contribution of one reward term over training (mean across seeds).
+#[derive(Debug, Clone, PartialEq)]
+pub struct TermCurve {
+    /// Term name.
+    pub name: String,
+    /// Env steps.
+    pub steps: Vec<u64>,
+    /// Mean contribution at each step.
+    pub mean: Vec<f64>,
+}
+
+/// IQM and mean of one per-run figure across a variant's runs.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct Aggregate {
+    /// Runs with the figure defined.
+    pub n: usize,
+    /// IQM with bootstrap CI.
+    pub iqm: Estimate,
+    /// Mean with bootstrap CI.
+    pub mean: Estimate,
+}
+
+/// Steps-to-threshold across a variant's runs.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct ThresholdAggregate {
+    /// IQM (censored runs entered at the budget) with bootstrap CI.
+    pub iqm: Estimate,
+    /// Runs that reached the threshold.
+    pub reached: usize,
+    /// Finished runs that never reached it.
+    pub censored: usize,
+    /// Unfinished runs that have not reached it yet (excluded).
+    pub pending: usize,
+    /// True when censored runs fall inside the middle half, so the IQM is only a lower bound.
+    pub lower_bound: bool,
+}
+
+/// Effect sizes of a variant against the reference, each with a stratified bootstrap CI over the
+/// seeds of both variants (IQM on each side).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct Effects {
+    /// IQM steps-to-threshold of this variant divided by the reference's (below 1 = faster).
+    pub steps_ratio: Estimate,
+    /// IQM final clean success of this variant minus the reference's.
+    pub success_diff: Estimate,
+    /// IQM AUC of this variant minus the reference's.
+    pub auc_diff: Estimate,
+    /// IQM final collision rate of this variant minus the reference's (below 0 = fewer contacts).
+    pub collision_diff: Estimate,
+}
+
+/// A variant against the reference variant.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct Comparison {
+    /// Effect sizes with CIs.
+    pub effects: Effects,
+    /// P(final success of this variant > reference's) with bootstrap CI.
+    pub poi_final_success: Estimate,
+    /// P(this variant needs fewer steps to the threshold) with bootstrap CI.
+    pub poi_steps: Estimate,
+    /// Mann-Whitney on final success.
+    pub mw_final_success: Option<MannWhitney>,
+    /// Mann-Whitney on steps-to-threshold (censored at the budget).
+    pub mw_steps: Option<MannWhitney>,
+}
+
+/// Result of the reward-gaming check on the across-seed mean curves.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct GamingFlag {
+    /// Env steps where mean success peaked.
+    pub peak_step: u64,
+    /// Peak mean success minus final-window mean success.
+    pub success_drop: f64,
+    /// Final-window mean return minus mean return at the peak, as a fraction of the return range.
+    pub return_rise: f64,
+}
+
+/// Result of the crash check: episodes got shorter while the collision rate rose, the pattern of a
+/// policy that ends its episodes by hitting something (e.g. when contact ends the episode and
+/// per-step costs make an early end cheaper than reaching the goal).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct CrashFlag {
+    /// Env steps where mean episode length was longest.
+    pub from_step: u64,
+    /// Final-window mean collision rate minus the rate there.
+    pub collision_rise: f64,
+    /// Fraction by which mean episode length fell from there to the final window.
+    pub length_drop: f64,
+}
+
+/// The classical controller's figures with intervals over its evaluation episodes (it is
+/// deterministic, so seeds add nothing): Wilson score intervals of each proportion.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct EpisodeLevel {
+    /// Evaluation episodes behind each proportion.
+    pub episodes: u64,
+    /// Clean success rate with its Wilson interval.
+    pub success: Estimate,
+    /// Reached rate with its Wilson interval.
+    pub reached: Estimate,
+    /// Collision rate with its Wilson interval.
+    pub collision: Estimate,
+}
+
+/// How a learned variant stands against the classical controller on one figure.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+pub enum Verdict {
+    /// The variant's interval lies entirely on the better side of the controller's.
+    Better,
+    /// The variant's interval lies entirely on the worse side.
+    Worse,
+    /// The intervals overlap: the data do not tell them apart.
+    Unclear,
+}
+
+/// Everything known about one variant.
+#[derive(Debug, Clone, PartialEq)]
+pub struct VariantSummary {
+    /// Declaration from study.json.
+    pub info: VariantRecord,
+    /// Position in study.json (fixes the colour).
+    pub index: usize,
+    /// Run status counts.
+    pub status: StatusCounts,
+    /// Learning curves by metric.
+    pub curves: BTreeMap<CurveMetric, Curve>,
+    /// Raw per-seed curves.
+    pub seed_curves: Vec<SeedCurve>,
+    /// Reward-term attribution curves.
+    pub terms: Vec<TermCurve>,
+    /// Per-run figures.
+    pub runs: Vec<RunMetrics>,
+    /// Steps-to-threshold aggregate.
+    pub steps_to_threshold: ThresholdAggregate,
+    /// Area under the success curve.
+    pub auc: Aggregate,
+    /// Final clean success rate (goal reached, no contact). For a baseline the interval is
+    /// episode-level (Wilson), see `episode_level`.
+    pub final_success: Aggregate,
+    /// Final reached rate (contact allowed).
+    pub final_reached: Aggregate,
+    /// Final collision rate.
+    pub final_collision: Aggregate,
+    /// Final mean episode length, control steps.
+    pub episode_steps: Aggregate,
+    /// Baselines: proportions with intervals over evaluation episodes.
+    pub episode_level: Option<EpisodeLevel>,
+    /// Final mean return.
+    pub final_return: Aggregate,
+    /// Final time to goal, s.
+    pub time_to_goal: Aggregate,
+    /// Final RMS joint acceleration, rad/s^2.
+    pub rms_joint_acc: Aggregate,
+    /// Final peak joint acceleration, rad/s^2.
+    pub peak_joint_acc: Aggregate,
+    /// Final RMS jerk, rad/s^3.
+    pub rms_jerk: Aggregate,
+    /// Final effector path length, m.
+    pub path_length: Aggregate,
+    /// Final minimum clearance, m.
+    pub min_clearance: Aggregate,
+    /// Final replans per episode.
+    pub replans: Aggregate,
+    /// Against the reference (None for the reference itself).
+    pub vs_reference: Option<Comparison>,
+    /// Set when return rose while clean success fell.
+    pub gaming: Option<GamingFlag>,
+    /// Set when episodes got shorter while the collision rate rose.
+    pub crashing: Option<CrashFlag>,
+    /// Rank group (0 = tied with the leader); None for baselines and unranked variants.
+    pub group: Option<usize>,
+}
+
+/// The estimate of how many seeds would separate the top two learned variants.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct SeedsNeeded {
+    /// Index of the leader.
+    pub first: usize,
+    /// Index of the runner-up.
+    pub second: usize,
+    /// Seeds per variant in the study now (the smaller side).
+    pub seeds_now: usize,
+    /// Observed log ratio of IQM steps-to-threshold, runner-up over leader.
+    pub log_ratio: f64,
+    /// Bootstrap standard deviation of that log ratio at `seeds_now`.
+    pub sd: f64,
+    /// Seeds per variant at which the difference would be expected to show at the study's
+    /// confidence with the aimed power; None when no difference was observed.
+    pub seeds: Option<usize>,
+}
+
+/// The whole study.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StudySummary {
+    /// study.json.
+    pub study: StudyRecord,
+    /// Name of the reference variant.
+    pub reference: String,
+    /// Options used.
+    pub options: AnalysisOptions,
+    /// Variants in declaration order.
+    pub variants: Vec<VariantSummary>,
+    /// Status counts over all runs.
+    pub status: StatusCounts,
+    /// Confidence level of the pairwise intervals behind the rank groups (the study's level,
+    /// Bonferroni-adjusted for the number of pairwise comparisons made).
+    pub group_confidence: f64,
+    /// Seeds needed to separate the top two (None with fewer than two ranked variants).
+    pub seeds_needed: Option<SeedsNeeded>,
+    /// The leader, the head of the second rank group, and that head's steps-to-threshold IQM
+    /// over the leader's with its CI at `group_confidence` (None when every ranked variant is
+    /// tied with the leader).
+    pub gap: Option<(usize, usize, Estimate)>,
+}
+
+impl StudySummary {
+    /// Indices of the learned variants ranked best first: by steps-to-threshold IQM (fewer is
+    /// better), ties and undefined values broken by final clean success IQM (higher is better).
+    /// Baselines are yardsticks, not competitors: they are not ranked (see [`Self::baselines`]).
+    pub fn ranking(&self) -> Vec<usize> {
+        let mut idx: Vec<usize> = (0..self.variants.len())
+            .filter(|&i| self.variants[i].info.kind == VariantKind::Learned)
+            .collect();
+        let key = |v: &VariantSummary| {
+            let baseline = v.info.kind == VariantKind::Baseline;
+            let steps = v.steps_to_threshold.iqm.point;
+            let steps = if steps.is_finite() {
+                steps
+            } else {
+                f64::INFINITY
+            };
+            let success = v.final_success.iqm.point;
+            let success = if success.is_finite() {
+                success
+            } else {
+                f64::NEG_INFINITY
+            };
+            (baseline, steps, -success)
+        };
+        idx.sort_by(|&a, &b| {
+            let (ka, kb) = (key(&self.variants[a]), key(&self.variants[b]));
+            ka.0.cmp(&kb.0)
+                .then(ka.1.total_cmp(&kb.1))
+                .then(ka.2.total_cmp(&kb.2))
+                .then(a.cmp(&b))
+        });
+        idx
+    }
+
+    /// Indices of the baseline variants, in declaration order.
+    pub fn baselines(&self) -> Vec<usize> {
+        (0..self.variants.len())
+            .filter(|&i| self.variants[i].info.kind == VariantKind::Baseline)
+            .collect()
+    }
+
+    /// Ranked variants in rank group `g`, best first.
+    pub fn group_members(&self, g: usize) -> Vec<usize> {
+        self.ranking()
+            .into_iter()
+            .filter(|&i| self.variants[i].group == Some(g))
+            .collect()
+    }
+
+    /// The variant with this name.
+    pub fn variant(&self, name: &str) -> Option<&VariantSummary> {
+        self.variants.iter().find(|v| v.info.name == name)
+    }
+}
+
+// Labels that keep each figure's bootstrap stream separate (see `stream_seed`).
