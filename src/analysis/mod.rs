@@ -9,6 +9,7 @@ pub mod load;
 pub mod run_metrics;
 pub mod stats;
 pub mod summary;
+pub mod training;
 
 pub use crate::results::{EvalRow, RunStatus, StudyRecord, VariantKind, VariantRecord};
 pub use bootstrap::{BootstrapSpec, Estimate};

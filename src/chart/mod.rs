@@ -11,6 +11,7 @@ pub mod style;
 pub mod table;
 pub mod terminal;
 pub mod threshold;
+pub mod training;
 
 pub use render::ChartFiles;
 pub use terminal::terminal_summary;
@@ -112,6 +113,12 @@ pub fn write_report_from(
                 summary,
                 variants: with_curriculum,
             },
+            &charts_dir,
+        )?);
+    }
+    if !training::with_training(summary).is_empty() {
+        charts.push(render::render(
+            &training::TrainingHealthChart { summary },
             &charts_dir,
         )?);
     }

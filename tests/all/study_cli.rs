@@ -81,7 +81,20 @@ fn same_results_with_one_or_two_workers_and_resume_skips() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     for v in ["with-path", "without-path"] {
         for s in 0..2 {
-            for f in ["evaluations.csv", "term_contributions.csv"] {
+            // training.csv (PPO's per-iteration figures) is reproducible too; training-speed.csv holds the
+            // wall-clock speed and is the one run file that differs between repeats.
+            let speed = a
+                .join(v)
+                .join(format!("seed-{s}"))
+                .join("training-speed.csv");
+            assert!(
+                std::fs::read_to_string(&speed)
+                    .unwrap()
+                    .starts_with("iteration,env_steps,steps_per_s\n"),
+                "{}",
+                speed.display()
+            );
+            for f in ["evaluations.csv", "term_contributions.csv", "training.csv"] {
                 let pa = a.join(v).join(format!("seed-{s}")).join(f);
                 let x = std::fs::read(&pa).unwrap();
                 assert_eq!(
@@ -105,6 +118,18 @@ fn same_results_with_one_or_two_workers_and_resume_skips() {
         text.contains("0 runs ran") && text.contains("4 already finished"),
         "{text}"
     );
+    // The report has a training-health panel and chart from the runs' training.csv.
+    let o = bin()
+        .args(["report", a.to_str().unwrap(), "--resamples", "50"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let html = std::fs::read_to_string(a.join("report.html")).unwrap();
+    assert!(
+        html.contains("<h2>Training health</h2>") && html.contains("id=\"chart-training_health\""),
+        "no training-health panel"
+    );
+    assert!(a.join("charts/training_health.svg").is_file());
     // A changed config refuses to mix with the old results.
     let exp2 = tiny(&d, "").to_path_buf();
     let t = std::fs::read_to_string(&exp2)

@@ -279,6 +279,7 @@ fn summarize_variant(
         }
     }
     VariantSummary {
+        training: super::training::training_health(v),
         steps_to_threshold: threshold_aggregate(index, &runs, opts),
         auc: agg(10, |m| m.auc),
         final_success,

@@ -345,6 +345,8 @@ pub struct VariantSummary {
     pub crashing: Option<CrashFlag>,
     /// Rank group (0 = tied with the leader); None for baselines and unranked variants.
     pub group: Option<usize>,
+    /// What PPO did per iteration, across seeds (None for the baseline and runs without training.csv).
+    pub training: Option<crate::analysis::training::TrainingHealth>,
 }
 
 /// The estimate of how many seeds would separate the top two learned variants.
