@@ -71,7 +71,7 @@ pub fn record(v: &VariantSpec, controller: &Controller, eval_seed: u64, j: u64) 
         &v.reward,
         &v.plan,
         v.learner.gamma,
-        v.observation.waypoints,
+        &v.observation,
     );
     let mut baseline = crate::study::run::baseline_actor(v);
     begin_eval(&mut ep, eval_seed, j);

@@ -83,15 +83,21 @@ pub fn observation_layout(v: &VariantSpec) -> (usize, String) {
         &v.reward,
         &v.plan,
         v.learner.gamma,
-        v.observation.waypoints,
+        &v.observation,
     );
     let (sim, all) = (ep.sim.obs_dim(), ep.obs_dim());
-    let path = if v.observation.waypoints {
+    let n = v.scenario.n();
+    let mut path = if v.observation.waypoints {
         format!(" + {} waypoints x 2", v.plan.waypoints)
     } else {
         " (observation.waypoints = false)".into()
     };
-    let n = v.scenario.n();
+    if v.observation.joint_waypoints {
+        path += &format!(" + {} joint waypoints x {n}", v.plan.waypoints);
+    }
+    if v.observation.clearance {
+        path += &format!(" + link clearances and their gradient ({})", 2 * n);
+    }
     (
         all,
         format!("{all} values: {n}-joint arm, goal and obstacles ({sim}){path}"),
@@ -145,7 +151,7 @@ pub fn evaluate_policy(exp: &Experiment, v: &VariantSpec, policy: &Policy) -> Ev
         &v.reward,
         &v.plan,
         v.learner.gamma,
-        v.observation.waypoints,
+        &v.observation,
     );
     let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
     let mut act = |_: &Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
@@ -162,7 +168,7 @@ pub fn eval_redraws(exp: &Experiment, v: &VariantSpec) -> (u64, u64) {
         &v.reward,
         &v.plan,
         v.learner.gamma,
-        v.observation.waypoints,
+        &v.observation,
     );
     let (mut redraws, mut unsolved) = (0, 0);
     for j in 0..exp.study.eval_episodes as u64 {
@@ -181,7 +187,7 @@ pub fn evaluate_baseline(exp: &Experiment, v: &VariantSpec) -> EvalSummary {
         &v.reward,
         &v.plan,
         v.learner.gamma,
-        v.observation.waypoints,
+        &v.observation,
     );
     let mut eps = Vec::with_capacity(exp.study.eval_episodes as usize);
     for j in 0..exp.study.eval_episodes as u64 {
@@ -230,7 +236,7 @@ pub fn build_envs(
                 &v.reward,
                 &v.plan,
                 v.learner.gamma,
-                v.observation.waypoints,
+                &v.observation,
             );
             Box::new(TaskEnv::new(
                 ep,
