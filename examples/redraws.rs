@@ -34,7 +34,7 @@ fn main() {
             &v.reward,
             &v.plan,
             v.learner.gamma,
-            v.observation.waypoints,
+            &v.observation,
         );
         let t = Instant::now();
         let (mut redraws, mut needed, mut unsolved) = (0, 0, 0);

@@ -55,22 +55,7 @@ fn default_final_window() -> i64 {
     3
 }
 
-/// What the policy observes beyond the simulator's physical observation (`[observation]`).
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ObservationSpec {
-    /// Append the next K reference-path waypoints relative to the effector (a path-conditioned policy). Default true.
-    #[serde(default = "yes")]
-    pub waypoints: bool,
-}
-fn yes() -> bool {
-    true
-}
-impl Default for ObservationSpec {
-    fn default() -> Self {
-        ObservationSpec { waypoints: true }
-    }
-}
+pub use crate::task::ObservationSpec;
 
 /// Generated variants (`[generate]`).
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]

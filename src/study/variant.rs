@@ -12,7 +12,7 @@ impl VariantSpec {
             &self.reward,
             &self.plan,
             self.learner.gamma,
-            self.observation.waypoints,
+            &self.observation,
         )
     }
 
@@ -20,12 +20,18 @@ impl VariantSpec {
     pub fn observation_layout(&self) -> (usize, String) {
         let ep = self.episode();
         let (sim, all) = (ep.sim.obs_dim(), ep.obs_dim());
-        let path = if self.observation.waypoints {
+        let n = self.scenario.n();
+        let mut path = if self.observation.waypoints {
             format!(" + {} waypoints x 2", self.plan.waypoints)
         } else {
             " (observation.waypoints = false)".into()
         };
-        let n = self.scenario.n();
+        if self.observation.joint_waypoints {
+            path += &format!(" + {} joint waypoints x {n}", self.plan.waypoints);
+        }
+        if self.observation.clearance {
+            path += &format!(" + link clearances and their gradient ({})", 2 * n);
+        }
         (
             all,
             format!("{all} values: {n}-joint arm, goal and obstacles ({sim}){path}"),

@@ -2,6 +2,7 @@
 //! check of the start/goal draw), the reward composer, the observation the policy sees, and the metrics.
 
 use super::metrics::{Accum, EpisodeMetrics};
+use super::observation::ObservationSpec;
 use crate::curriculum::EpisodeDraw;
 use crate::plan::connectivity::ConnectivityGrid;
 use crate::plan::{plan_path, PlanSpec, ReferencePath};
@@ -41,7 +42,8 @@ pub struct Episode {
     pub path: ReferencePath,
     prev: StepReport,
     acc: Accum,
-    path_obs: bool,
+    /// What the policy observes beyond the simulator's physical observation.
+    obs: ObservationSpec,
     plan_rng: ChaCha8Rng,
     /// Joint-space connectivity of the obstacle layouts episodes began with (two-link arms; curricula may
     /// vary the obstacle count, so a few layouts are kept).
@@ -54,7 +56,7 @@ impl Episode {
         reward: &RewardSpec,
         plan: &PlanSpec,
         gamma: f64,
-        path_obs: bool,
+        obs: &ObservationSpec,
     ) -> Episode {
         let sim = ArmEnv::new(scenario);
         let prev = sim.last_report();
@@ -72,17 +74,30 @@ impl Episode {
             plan: plan.clone(),
             prev,
             acc: Accum::default(),
-            path_obs,
+            obs: obs.clone(),
             plan_rng: ChaCha8Rng::seed_from_u64(n as u64),
             grids: Vec::new(),
         }
     }
 
-    /// Observation length: the simulator's plus 2 per waypoint when the policy is path-conditioned.
+    /// Observation length: the simulator's, plus 2 per waypoint when the policy is path-conditioned, plus n per
+    /// waypoint with joint-space waypoints, plus 2n with the clearance entries.
     pub fn obs_dim(&self) -> usize {
+        let n = self.sim.n();
+        let o = &self.obs;
         self.sim.obs_dim()
-            + if self.path_obs {
+            + if o.waypoints {
                 2 * self.plan.waypoints
+            } else {
+                0
+            }
+            + if o.joint_waypoints {
+                n * self.plan.waypoints
+            } else {
+                0
+            }
+            + if o.clearance {
+                self.sim.clearance_obs_dim()
             } else {
                 0
             }
@@ -238,20 +253,39 @@ impl Episode {
     }
 
     /// Write the observation: the simulator's, then the next K waypoints relative to the effector (scaled by reach).
+    /// Then, when enabled, the same waypoints' joint offsets and the clearance entries.
     pub fn observe(&self, out: &mut [f32]) {
-        let d = self.sim.obs_dim();
+        let mut d = self.sim.obs_dim();
         self.sim.observe(&mut out[..d]);
-        if !self.path_obs {
-            return;
+        let o = &self.obs;
+        if o.waypoints || o.joint_waypoints {
+            let ee = self.prev.ee;
+            let reach = self.sim.scenario().arm.reach();
+            let seg = self.path.polyline().project(ee).segment;
+            let last = self.path.points.len() - 1;
+            if o.waypoints {
+                for k in 0..self.plan.waypoints {
+                    let p = self.path.points[(seg + 1 + k).min(last)];
+                    out[d] = ((p[0] - ee[0]) / reach) as f32;
+                    out[d + 1] = ((p[1] - ee[1]) / reach) as f32;
+                    d += 2;
+                }
+            }
+            if o.joint_waypoints {
+                let n = self.sim.n();
+                let q = self.sim.state().q;
+                for k in 0..self.plan.waypoints {
+                    let w = self.path.joints[(seg + 1 + k).min(last)];
+                    for i in 0..n {
+                        out[d] = ((w[i] - q[i]) / std::f64::consts::PI) as f32;
+                        d += 1;
+                    }
+                }
+            }
         }
-        let ee = self.prev.ee;
-        let reach = self.sim.scenario().arm.reach();
-        let pts = &self.path.points;
-        let seg = self.path.polyline().project(ee).segment;
-        for k in 0..self.plan.waypoints {
-            let p = pts[(seg + 1 + k).min(pts.len() - 1)];
-            out[d + 2 * k] = ((p[0] - ee[0]) / reach) as f32;
-            out[d + 2 * k + 1] = ((p[1] - ee[1]) / reach) as f32;
+        if o.clearance {
+            let c = self.sim.clearance_obs_dim();
+            self.sim.observe_clearance(&mut out[d..d + c]);
         }
     }
 }

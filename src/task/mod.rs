@@ -7,10 +7,12 @@ pub mod env;
 pub mod episode;
 pub mod eval;
 pub mod metrics;
+pub mod observation;
 pub mod trajectory;
 
 pub use env::{RunShared, TaskEnv};
 pub use episode::{feasibility_spec, Episode, Redraws, MAX_REDRAWS};
 pub use eval::{baseline_actor, begin_eval, eval_redraws, evaluate, run_episode, Actor};
 pub use metrics::{rms_per_joint, EpisodeMetrics, EvalSummary};
+pub use observation::ObservationSpec;
 pub use trajectory::{trajectory_metrics, TrajectoryMetrics};

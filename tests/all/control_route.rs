@@ -21,7 +21,7 @@ fn the_controller_reaches_every_quickstart_goal_without_contact_and_within_its_c
         &v.reward,
         &v.plan,
         v.learner.gamma,
-        v.observation.waypoints,
+        &v.observation,
     );
     let n = v.scenario.n();
     let arm = &v.scenario.arm;

@@ -361,3 +361,74 @@ fn solid_boundary_and_boxes_hold_too() {
     );
     assert!(worst <= MAX_PENETRATION, "penetration {worst}");
 }
+
+/// The clearance entries of the observation (`ArmEnv::observe_clearance`): each link's distance to the nearest disc
+/// and the joint-space gradient of the smallest, against the closed form. For a disc of centre c and radius R and
+/// a link capsule of radius r whose segment point nearest to c is p, the clearance is |p - c| - R - r and its
+/// derivative along joint j (a joint that moves p) is n . (z x (p - p_j)) with n = (p - c) / |p - c|: the planar
+/// Jacobian column z x (p - p_j) (Siciliano et al. 2009, Robotics: Modelling, Planning and Control, eq. 3.30)
+/// projected on the distance's gradient, as in the obstacle avoidance of Khatib 1986 (IJRR 5(1), eq. 14).
+#[test]
+fn clearance_observation_matches_the_closed_form_distance_and_its_joint_gradient() {
+    let sc = scenario(
+        &[(0.5, 1.0, 0.03), (0.4, 1.0, 0.025)],
+        "acceleration",
+        "[[obstacle]]\nshape = \"disc\"\ncenter = [0.55, 0.45]\nradius = 0.1\n\
+         [[obstacle]]\nshape = \"disc\"\ncenter = [-0.6, -0.5]\nradius = 0.05\n",
+    );
+    let mut env = ArmEnv::new(sc.clone());
+    let q = [0.35, 0.9];
+    env.reset(ArmState::at_rest(&q), [0.0, 0.6], 0);
+    let mut out = vec![0.0f32; env.clearance_obs_dim()];
+    env.observe_clearance(&mut out);
+    let reach = 0.9;
+    let mut pts = [[0.0; 2]; MAX_JOINTS + 1];
+    sc.arm.joint_points(&q, &mut pts);
+    // Closed form per link: nearest point on the segment to each disc centre.
+    let discs = [([0.55, 0.45], 0.1), ([-0.6, -0.5], 0.05)];
+    let radii = [0.03, 0.025];
+    let mut best = (f64::INFINITY, 0usize, [0.0; 2], [0.0; 2]);
+    for link in 0..2 {
+        let (a, b) = (pts[link], pts[link + 1]);
+        let mut link_min = f64::INFINITY;
+        for &(c, r) in &discs {
+            let ab = [b[0] - a[0], b[1] - a[1]];
+            let t = (((c[0] - a[0]) * ab[0] + (c[1] - a[1]) * ab[1])
+                / (ab[0] * ab[0] + ab[1] * ab[1]))
+                .clamp(0.0, 1.0);
+            let p = [a[0] + t * ab[0], a[1] + t * ab[1]];
+            let d = ((p[0] - c[0]).powi(2) + (p[1] - c[1]).powi(2)).sqrt() - r - radii[link];
+            link_min = link_min.min(d);
+            if d < best.0 {
+                best = (d, link, p, c);
+            }
+        }
+        assert!(
+            (out[link] as f64 - (link_min / reach).min(1.0)).abs() < 1e-6,
+            "link {link}: observed {} vs closed form {}",
+            out[link],
+            link_min / reach
+        );
+    }
+    let (_, link, p, c) = best;
+    let len = ((p[0] - c[0]).powi(2) + (p[1] - c[1]).powi(2)).sqrt();
+    let nrm = [(p[0] - c[0]) / len, (p[1] - c[1]) / len];
+    for j in 0..2 {
+        // Joints beyond the nearest point's link do not move it.
+        let g = if j <= link {
+            let r = [p[0] - pts[j][0], p[1] - pts[j][1]];
+            nrm[0] * -r[1] + nrm[1] * r[0]
+        } else {
+            0.0
+        };
+        assert!(
+            (out[2 + j] as f64 - g / reach).abs() < 1e-4,
+            "joint {j}: observed gradient {} vs closed form {}",
+            out[2 + j],
+            g / reach
+        );
+    }
+    // The nearest pair here is the second link and the first disc, so both joints move it.
+    assert_eq!(link, 1);
+    assert!(out[2].abs() > 1e-3 && out[3].abs() > 1e-3);
+}

@@ -18,7 +18,7 @@ fn quickstart_episode() -> (experiment::Experiment, Episode) {
         &v.reward,
         &v.plan,
         v.learner.gamma,
-        v.observation.waypoints,
+        &v.observation,
     );
     (exp, ep)
 }
@@ -72,4 +72,45 @@ fn the_grid_rejects_only_draws_the_generous_planner_cannot_solve() {
         agreed, rejected,
         "the planner solved draws the grid rejected"
     );
+}
+
+/// With `observation.joint_waypoints`, the entries after the effector waypoints are the joint offsets of the next
+/// waypoints over pi. At an episode's first step the arm stands on the path's first waypoint, so "the next K" are
+/// waypoints 1..K (the goal repeated once the path runs out). A definition check: no outside source applies.
+#[test]
+fn joint_waypoint_entries_are_the_next_waypoints_joint_offsets() {
+    let exp = experiment::load(Path::new("experiments/quickstart.toml")).unwrap();
+    let mut v = exp.variants[0].clone();
+    v.observation.waypoints = true;
+    v.observation.joint_waypoints = true;
+    v.observation.clearance = false;
+    let mut ep = Episode::new(
+        v.scenario.clone(),
+        &v.reward,
+        &v.plan,
+        v.learner.gamma,
+        &v.observation,
+    );
+    let k = v.plan.waypoints;
+    let n = v.scenario.n();
+    assert_eq!(ep.obs_dim(), ep.sim.obs_dim() + 2 * k + n * k);
+    for j in 0..5 {
+        begin_eval(&mut ep, exp.study.eval_seed, j);
+        let mut obs = vec![0.0f32; ep.obs_dim()];
+        ep.observe(&mut obs);
+        let q = ep.sim.state().q;
+        assert_eq!(ep.path.joints.len(), k);
+        let base = ep.sim.obs_dim() + 2 * k;
+        for w in 0..k {
+            let target = ep.path.joints[(w + 1).min(k - 1)];
+            for i in 0..n {
+                let want = ((target[i] - q[i]) / std::f64::consts::PI) as f32;
+                assert_eq!(
+                    obs[base + n * w + i],
+                    want,
+                    "episode {j}, waypoint {w}, joint {i}"
+                );
+            }
+        }
+    }
 }
