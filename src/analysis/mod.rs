@@ -1,7 +1,7 @@
-//! `analysis`: statistics over runs and seeds — reads a results folder (through `results`, never `study`), computes per-run figures,
-//! across-seed IQM and mean with stratified bootstrap confidence intervals, and comparisons against
-//! the reference variant (Agarwal et al., "Deep RL at the Edge of the Statistical Precipice",
-//! NeurIPS 2021). Knows nothing about plotting.
+//! `analysis`: statistics over runs and seeds — reads a results folder (through `results`, never `study`),
+//! computes per-run figures, across-seed IQM and mean with stratified bootstrap confidence intervals, and
+//! comparisons against the reference variant (Agarwal et al., "Deep RL at the Edge of the Statistical
+//! Precipice", NeurIPS 2021). Knows nothing about plotting.
 
 pub mod bootstrap;
 pub mod compare;

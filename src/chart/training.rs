@@ -8,9 +8,10 @@ use super::render::Chart;
 use super::style::*;
 use super::ChartError;
 use crate::analysis::training::{TrainingHealth, CLIP_HIGH, KL_HIGH};
-use crate::analysis::StudySummary;
+use crate::analysis::{StudySummary, VariantSummary};
 use plotters::coord::Shift;
 use plotters::prelude::*;
+use std::fmt::Write as _;
 
 /// The training-health chart of a study (drawn when some variant has training.csv).
 pub struct TrainingHealthChart<'a> {
@@ -159,4 +160,36 @@ impl Chart for TrainingHealthChart<'_> {
         }
         Ok(())
     }
+}
+
+/// One row per learned variant with a training.csv: the late-training PPO figures and their warnings.
+pub fn html_panel(h: &mut String, s: &StudySummary, swatch: fn(&VariantSummary) -> String) {
+    let rows: Vec<_> = s
+        .variants
+        .iter()
+        .filter_map(|v| v.training.as_ref().map(|t| (v, t)))
+        .collect();
+    if rows.is_empty() {
+        return;
+    }
+    h.push_str("<h2>Training health</h2><p>PPO's own figures over the last quarter of the iterations, mean across seeds (each run's training.csv; the chart <i>training_health</i> shows them over training). Look here first when a variant does not learn.</p><table><tr><th>variant</th><th>seeds</th><th>approx KL</th><th>clip fraction</th><th>entropy (nats)</th><th>explained variance</th><th>warnings</th></tr>");
+    for (v, t) in rows {
+        let [kl, clip, ent, ev] = t.late;
+        let warn = if t.warnings.is_empty() {
+            "—".to_string()
+        } else {
+            t.warnings
+                .iter()
+                .map(|w| super::html::esc(w))
+                .collect::<Vec<_>>()
+                .join("<br>")
+        };
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td class=num>{}</td><td class=num>{kl:.4}</td><td class=num>{clip:.3}</td><td class=num>{ent:.3}</td><td class=num>{ev:.3}</td><td>{warn}</td></tr>",
+            swatch(v),
+            t.seeds
+        );
+    }
+    h.push_str("</table>");
 }

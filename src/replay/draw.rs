@@ -1,6 +1,6 @@
-//! Drawing a recorded episode: the frame (arm, obstacles, waypoints, goal, caption with each reward term's running sum), the animated GIF and the filmstrip PNG.
+//! Drawing a recorded episode: the frame (arm, obstacles, waypoints, goal, caption with each reward term's
+//! running sum), the animated GIF and the filmstrip PNG.
 
-#[allow(unused_imports)]
 use super::*;
 
 /// with no contact.

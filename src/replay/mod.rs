@@ -1,6 +1,6 @@
-//! `replay`: deterministic rollouts of a trained checkpoint or of the classical tracking controller on a study's
-//! evaluation episodes, drawn as an animated GIF (and a filmstrip PNG for print), with per-episode trajectory
-//! metrics written as CSV.
+//! `replay`: deterministic rollouts of a trained checkpoint or of the classical tracking controller on a
+//! study's evaluation episodes, drawn as an animated GIF (and a filmstrip PNG for print), with per-episode
+//! trajectory metrics written as CSV.
 
 use crate::learn::Policy;
 use crate::sim::{Shape, StepReport};
@@ -11,7 +11,6 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 mod draw;
-#[allow(unused_imports)]
 pub use draw::*;
 
 /// Why a replay failed.

@@ -1,6 +1,6 @@
-//! `termwise check`: the plan in words, the evaluation count, the redraw note and the wall-time estimate from a short calibration on this machine.
+//! `termwise check`: the plan in words, the evaluation count, the redraw note and the wall-time estimate from
+//! a short calibration on this machine.
 
-#[allow(unused_imports)]
 use super::*;
 
 /// `termwise check`: the plan as text — each variant and what it changes, runs, steps, and a wall-time estimate

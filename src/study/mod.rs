@@ -1,6 +1,6 @@
-//! `study`: experiment files, variant and ablation expansion, run planning, parallel execution with resume, and
-//! writing study.json and each run's files in the results format (`results`). The library side of `termwise run`,
-//! `check`, `slurm` and `status`.
+//! `study`: experiment files, variant and ablation expansion, run planning, parallel execution with resume,
+//! and writing study.json and each run's files in the results format (`results`). The library side of
+//! `termwise run`, `check`, `slurm` and `status`.
 
 pub mod experiment;
 pub mod layout;
@@ -23,7 +23,6 @@ use std::sync::Mutex;
 use std::time::Instant;
 
 mod check;
-#[allow(unused_imports)]
 pub use check::*;
 
 /// Why a study could not run.

@@ -1,6 +1,6 @@
-//! Per-variant checks over the curves: reward-term contributions, reward gaming (success falls while a shaping term grows) and late crashes.
+//! Per-variant checks over the curves: reward-term contributions, reward gaming (success falls while a
+//! shaping term grows) and late crashes.
 
-#[allow(unused_imports)]
 use super::*;
 
 /// Mean contribution of each reward term at each step, across the variant's runs.

@@ -17,9 +17,7 @@ mod checks;
 #[cfg(test)]
 mod tests;
 mod types;
-#[allow(unused_imports)]
-pub use checks::*;
-#[allow(unused_imports)]
+use checks::*;
 pub use types::*;
 
 const TAG_CURVE_MEAN: u64 = 1;
@@ -264,7 +262,7 @@ fn summarize_variant(
     let mut final_reached = agg(20, |m| m.final_reached);
     let mut final_collision = agg(21, |m| m.final_collision);
     let episode_level = if v.info.kind == VariantKind::Baseline && study.eval_episodes > 0 {
-        episode_level(&runs, study.eval_episodes as u64, opts.confidence)
+        episode_level(&runs, study.eval_episodes, opts.confidence)
     } else {
         None
     };

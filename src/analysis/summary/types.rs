@@ -1,6 +1,6 @@
-//! The summary's types: analysis settings, run-status counts, curves, aggregates, comparisons, flags, verdicts and the per-variant and per-study summaries.
+//! The summary's types: analysis settings, run-status counts, curves, aggregates, comparisons, flags,
+//! verdicts and the per-variant and per-study summaries.
 
-#[allow(unused_imports)]
 use super::*;
 
 /// Analysis settings.

@@ -10,7 +10,6 @@ use crate::analysis::{
 use std::fmt::Write;
 
 mod words;
-#[allow(unused_imports)]
 pub use words::*;
 
 /// Escape text for HTML.
@@ -177,7 +176,7 @@ pub fn report_html(s: &StudySummary, charts: &[ChartFiles]) -> String {
             esc(&c.caption)
         );
     }
-    training_health(&mut h, s);
+    super::training::html_panel(&mut h, s, swatch);
     run_status(&mut h, s);
     methods(&mut h, s);
     h.push_str("</main></body></html>\n");
@@ -430,38 +429,6 @@ fn changes(h: &mut String, s: &StudySummary) {
             esc(&s.study.config_toml)
         );
     }
-}
-
-/// One row per learned variant with a training.csv: the late-training PPO figures and their warnings.
-fn training_health(h: &mut String, s: &StudySummary) {
-    let rows: Vec<_> = s
-        .variants
-        .iter()
-        .filter_map(|v| v.training.as_ref().map(|t| (v, t)))
-        .collect();
-    if rows.is_empty() {
-        return;
-    }
-    h.push_str("<h2>Training health</h2><p>PPO's own figures over the last quarter of the iterations, mean across seeds (each run's training.csv; the chart <i>training_health</i> shows them over training). Look here first when a variant does not learn.</p><table><tr><th>variant</th><th>seeds</th><th>approx KL</th><th>clip fraction</th><th>entropy (nats)</th><th>explained variance</th><th>warnings</th></tr>");
-    for (v, t) in rows {
-        let [kl, clip, ent, ev] = t.late;
-        let warn = if t.warnings.is_empty() {
-            "—".to_string()
-        } else {
-            t.warnings
-                .iter()
-                .map(|w| esc(w))
-                .collect::<Vec<_>>()
-                .join("<br>")
-        };
-        let _ = write!(
-            h,
-            "<tr><td>{}</td><td class=num>{}</td><td class=num>{kl:.4}</td><td class=num>{clip:.3}</td><td class=num>{ent:.3}</td><td class=num>{ev:.3}</td><td>{warn}</td></tr>",
-            swatch(v),
-            t.seeds
-        );
-    }
-    h.push_str("</table>");
 }
 
 fn run_status(h: &mut String, s: &StudySummary) {

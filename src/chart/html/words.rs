@@ -1,6 +1,6 @@
-//! The sentences of the report: the plan in words, the headline answer with its intervals, and the yardstick against the classical controller.
+//! The sentences of the report: the plan in words, the headline answer with its intervals, and the yardstick
+//! against the classical controller.
 
-#[allow(unused_imports)]
 use super::*;
 
 /// "3 learned variants × 5 seeds + the classical controller (1 deterministic run)", with the

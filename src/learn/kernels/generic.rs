@@ -1,9 +1,7 @@
-//! The generic kernels over a vector of lanes (the `Lanes` trait): the register-tiled broadcast product and the narrow dot products, with the portable lanes; the x86 instantiations are in `kernels::x86`.
+//! The generic kernels over a vector of lanes (the `Lanes` trait): the register-tiled broadcast product and
+//! the narrow dot products, with the portable lanes; the x86 instantiations are in `kernels::x86`.
 
-#[allow(unused_imports)]
-use super::*;
-
-/// Arguments of [`KernelPath::bcast`] as raw pointers (checked by the caller).
+/// Arguments of [`super::KernelPath::bcast`] as raw pointers (checked by the caller).
 pub(super) struct Bcast {
     pub(super) m: usize,
     pub(super) n: usize,
@@ -18,7 +16,7 @@ pub(super) struct Bcast {
     pub(super) ldb: usize,
 }
 
-/// Arguments of [`KernelPath::dots`] as raw pointers (checked by the caller).
+/// Arguments of [`super::KernelPath::dots`] as raw pointers (checked by the caller).
 pub(super) struct Dots {
     pub(super) m: usize,
     pub(super) n: usize,
@@ -82,7 +80,7 @@ impl Lanes for Portable {
     }
 }
 
-/// One register tile of [`KernelPath::bcast`]: `MR` rows x `NV` vectors (the last of which
+/// One register tile of [`super::KernelPath::bcast`]: `MR` rows x `NV` vectors (the last of which
 /// holds `last` valid lanes; all `L` when `FULL`, which keeps masks out of the inner loop)
 /// starting at row `i0`, column `j0`.
 #[inline(always)]

@@ -23,8 +23,7 @@ use std::sync::OnceLock;
 mod generic;
 #[cfg(test)]
 mod tests;
-#[allow(unused_imports)]
-pub use generic::*;
+use generic::*;
 
 /// For each plain `#[inline(always)]` body, a module with the body compiled for AVX2 and for
 /// AVX-512 (the element-wise loops are written plainly and vectorised by the compiler; Rust

@@ -1,6 +1,6 @@
-//! Contact detection: closest points and normals between link capsules and discs, boxes, the workspace boundary and other links, and each contact's row of the contact Jacobian.
+//! Contact detection: closest points and normals between link capsules and discs, boxes, the workspace
+//! boundary and other links, and each contact's row of the contact Jacobian.
 
-#[allow(unused_imports)]
 use super::*;
 
 #[inline]

@@ -21,7 +21,6 @@ use super::geometry::{box_sdf, closest_param, Shape};
 use serde::{Deserialize, Serialize};
 
 mod detect;
-#[allow(unused_imports)]
 pub use detect::*;
 
 /// How obstacles, the boundary and (optionally) the arm itself act on the arm.
