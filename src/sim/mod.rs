@@ -6,6 +6,7 @@ pub mod arm;
 pub mod contact;
 pub mod env;
 pub mod geometry;
+pub mod random_scene;
 pub mod scenario;
 pub mod simulate;
 

@@ -4,13 +4,11 @@
 
 use super::arm::{Arm, Link, MAX_JOINTS};
 pub use super::contact::ContactMode;
-use super::geometry::{capsule_shape_distance, shape_shape_distance, Capsule, Shape};
+use super::geometry::{capsule_shape_distance, Capsule, Shape};
 use crate::config::{finite, positive, ConfigError};
-use rand::Rng;
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
-mod random;
 mod raw;
 #[cfg(test)]
 mod tests;

@@ -1,7 +1,12 @@
 //! Random scenes: disc obstacles drawn from `[random]` (none overlapping the start pose, the goal region or
-//! each other) and a random reachable, collision-free goal.
+//! each other) and a random reachable, collision-free goal. Beside `scenario` rather than in it because the
+//! goal is drawn by an environment (`env` depends on `scenario`, so `scenario` must not depend on `env`).
 
-use super::*;
+use super::arm::MAX_JOINTS;
+use super::env::ArmEnv;
+use super::geometry::{capsule_shape_distance, shape_shape_distance, Capsule, Shape};
+use super::scenario::{Motion, Obstacle, Scenario};
+use rand::Rng;
 
 impl Scenario {
     /// A new scenario with random still disc obstacles drawn from `[random]` (none overlapping the start pose,
@@ -46,7 +51,7 @@ impl Scenario {
                 }
             }
         }
-        let env = crate::sim::env::ArmEnv::new(std::sync::Arc::new(sc.clone()));
+        let env = ArmEnv::new(std::sync::Arc::new(sc.clone()));
         sc.goal = env.sample_goal(rng);
         sc
     }
