@@ -24,7 +24,7 @@ impl ArmEnv {
         }
         // Where each joint sits between its stops, -1 at q_min and +1 at q_max (0 for a joint without finite
         // stops): cos/sin alone cannot tell the policy which way is blocked. Measured on the random-goal reach
-        // (tests/learn_reach.rs): without it the failures were arms pressed into a stop of joint 1, the goal lying
+        // (tests/all/learn_reach.rs): without it the failures were arms pressed into a stop of joint 1, the goal lying
         // beyond it (the way round is the long one).
         for (i, l) in self.sc.arm.links.iter().enumerate() {
             out[k] = if l.q_min.is_finite() && l.q_max.is_finite() && l.q_max > l.q_min {
@@ -84,7 +84,7 @@ impl ArmEnv {
         // textbook, e.g. Siciliano et al., Robotics: Modelling, Planning and Control, 2009, eq. 3.30), so entry i is
         // the planar cross product (ee - p_i) x (goal - ee). Scaled by reach^2 (dimensionless). Without it the
         // policy has to learn this product of trigonometric and Cartesian inputs itself; measured on the random-goal
-        // reach (tests/learn_reach.rs), adding it alone lifted PPO from 0.09 to 0.68 success at 200k steps.
+        // reach (tests/all/learn_reach.rs), adding it alone lifted PPO from 0.09 to 0.68 success at 200k steps.
         let mut pts = [[0.0; 2]; MAX_JOINTS + 1];
         self.sc.arm.joint_points(&s.q, &mut pts);
         let e = [self.goal[0] - r.ee[0], self.goal[1] - r.ee[1]];
