@@ -252,19 +252,7 @@ fn draw_panel<DB: DrawingBackend>(
         .y_label_area_size(74)
         .build_cartesian_2d(0.0..x_max, y0..y1)
         .map_err(draw_err(name))?;
-    chart
-        .configure_mesh()
-        .light_line_style(TRANSPARENT)
-        .bold_line_style(RULE)
-        .axis_style(MUTED)
-        .x_desc("environment steps")
-        .y_desc(panel.y_label)
-        .x_label_formatter(&|x| fmt_steps(*x))
-        .y_label_formatter(&|y| fmt_num(*y))
-        .label_style(text(13, INK))
-        .axis_desc_style(text(14, INK))
-        .draw()
-        .map_err(draw_err(name))?;
+    steps_axes(&mut chart, panel.y_label, 13, name)?;
     if panel.metric == CurveMetric::Success {
         let t = s.study.success_threshold;
         chart

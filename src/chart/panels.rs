@@ -110,19 +110,7 @@ impl Chart for TermChart<'_> {
                 .y_label_area_size(62)
                 .build_cartesian_2d(0.0..x_max, lo..hi)
                 .map_err(draw_err(name))?;
-            chart
-                .configure_mesh()
-                .light_line_style(TRANSPARENT)
-                .bold_line_style(RULE)
-                .axis_style(MUTED)
-                .x_desc("environment steps")
-                .y_desc("contribution per episode")
-                .x_label_formatter(&|x| fmt_steps(*x))
-                .y_label_formatter(&|y| fmt_num(*y))
-                .label_style(text(12, INK))
-                .axis_desc_style(text(13, INK))
-                .draw()
-                .map_err(draw_err(name))?;
+            steps_axes(&mut chart, "contribution per episode", 12, name)?;
             chart
                 .draw_series(LineSeries::new(
                     vec![(0.0, 0.0), (x_max, 0.0)],
@@ -251,19 +239,7 @@ impl Chart for ShapingChart<'_> {
                 .build_cartesian_2d(0.0..x_max, lo..hi)
                 .map_err(draw_err(name))?
                 .set_secondary_coord(0.0..x_max, 0.0..1.0);
-            chart
-                .configure_mesh()
-                .light_line_style(TRANSPARENT)
-                .bold_line_style(RULE)
-                .axis_style(MUTED)
-                .x_desc("environment steps")
-                .y_desc("mean return")
-                .x_label_formatter(&|x| fmt_steps(*x))
-                .y_label_formatter(&|y| fmt_num(*y))
-                .label_style(text(12, INK))
-                .axis_desc_style(text(13, INK))
-                .draw()
-                .map_err(draw_err(name))?;
+            steps_axes(&mut chart, "mean return", 12, name)?;
             chart
                 .configure_secondary_axes()
                 .y_desc("success rate")

@@ -345,6 +345,33 @@ pub fn lighten(c: RGBColor, t: f64) -> RGBColor {
     RGBColor(f(c.0), f(c.1), f(c.2))
 }
 
+/// The house axes of a chart against environment steps: no light grid, a ruled bold grid, muted axes,
+/// step labels on x (12.3k), numbers on y; tick labels `label_px` high, the axis titles one pixel larger.
+pub fn steps_axes<DB: DrawingBackend>(
+    chart: &mut ChartContext<
+        '_,
+        DB,
+        Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+    >,
+    y_desc: &str,
+    label_px: u32,
+    name: &'static str,
+) -> Result<(), ChartError> {
+    chart
+        .configure_mesh()
+        .light_line_style(TRANSPARENT)
+        .bold_line_style(RULE)
+        .axis_style(MUTED)
+        .x_desc("environment steps")
+        .y_desc(y_desc)
+        .x_label_formatter(&|x| fmt_steps(*x))
+        .y_label_formatter(&|y| fmt_num(*y))
+        .label_style(text(label_px, INK))
+        .axis_desc_style(text(label_px + 1, INK))
+        .draw()
+        .map_err(draw_err(name))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -119,19 +119,7 @@ impl Chart for TrainingHealthChart<'_> {
                 .y_label_area_size(62)
                 .build_cartesian_2d(0.0..x_max, (lo - pad)..(hi + pad))
                 .map_err(draw_err(name))?;
-            chart
-                .configure_mesh()
-                .light_line_style(TRANSPARENT)
-                .bold_line_style(RULE)
-                .axis_style(MUTED)
-                .x_desc("environment steps")
-                .y_desc(panel.y_desc)
-                .x_label_formatter(&|x| fmt_steps(*x))
-                .y_label_formatter(&|y| fmt_num(*y))
-                .label_style(text(12, INK))
-                .axis_desc_style(text(13, INK))
-                .draw()
-                .map_err(draw_err(name))?;
+            steps_axes(&mut chart, panel.y_desc, 12, name)?;
             if let Some(g) = panel.guide {
                 styled_line(
                     &mut chart,

@@ -24,10 +24,7 @@ pub fn run(a: CheckArgs) -> Outcome {
         .and_then(|exp| {
             crate::study::check_text(&exp, a.jobs.unwrap_or_else(cores), !a.no_calibrate)
         })
-        .map_err(|e| {
-            let bad = e.is_bad_input();
-            Failure::new(e, bad)
-        })?;
+        .map_err(Failure::classify)?;
     print!("{text}");
     Ok(ExitCode::SUCCESS)
 }

@@ -107,6 +107,36 @@ impl Failure {
     }
 }
 
+/// An error that knows whether the user's input is at fault (exit code 2) or not (1).
+pub trait Classified: Error + Send + Sync + Sized + 'static {
+    fn is_bad_input(&self) -> bool;
+}
+
+macro_rules! classified {
+    ($($t:ty),*) => {$(
+        impl Classified for $t {
+            fn is_bad_input(&self) -> bool {
+                <$t>::is_bad_input(self)
+            }
+        }
+    )*};
+}
+classified!(
+    crate::study::StudyError,
+    crate::chart::ChartError,
+    crate::replay::ReplayError,
+    crate::sim::simulate::SimulateError,
+    crate::plan::command::PlanCommandError
+);
+
+impl Failure {
+    /// A library error with the exit code its kind asks for.
+    pub fn classify<E: Classified>(e: E) -> Failure {
+        let bad = e.is_bad_input();
+        Failure::new(e, bad)
+    }
+}
+
 /// What a subcommand returns: the exit code of a finished command, or a failure to print.
 pub type Outcome = Result<ExitCode, Failure>;
 

@@ -57,10 +57,7 @@ pub fn run(a: PlanCmdArgs) -> Outcome {
         tree: a.tree,
         png: a.png,
     };
-    let o = crate::plan::command::run_plan(&args).map_err(|e| {
-        let bad = e.is_bad_input();
-        Failure::new(e, bad)
-    })?;
+    let o = crate::plan::command::run_plan(&args).map_err(Failure::classify)?;
     eprintln!(
         "termwise: planned {:.3} rad in joint space ({} iterations{}), wrote {} and {}{}",
         o.report.cost,

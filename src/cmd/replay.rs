@@ -51,10 +51,7 @@ pub fn run(a: ReplayCmdArgs) -> Outcome {
         episodes: a.episodes,
         metrics_out: a.metrics_out,
     };
-    let text = crate::replay::run_replay(&args).map_err(|e| {
-        let bad = e.is_bad_input();
-        Failure::new(e, bad)
-    })?;
+    let text = crate::replay::run_replay(&args).map_err(Failure::classify)?;
     eprintln!("{text}");
     Ok(ExitCode::SUCCESS)
 }

@@ -20,10 +20,7 @@ pub fn run(a: ReportArgs) -> Outcome {
     let mut opts = crate::chart::ReportOptions::default();
     opts.analysis.resamples = a.resamples as usize;
     opts.analysis.seed = a.seed;
-    let files = crate::chart::write_report(&a.results_dir, &opts).map_err(|e| {
-        let bad = e.is_bad_input();
-        Failure::new(e, bad)
-    })?;
+    let files = crate::chart::write_report(&a.results_dir, &opts).map_err(Failure::classify)?;
     print!("{}", crate::chart::terminal_summary(&files.summary));
     println!("report: {}", files.report_html.display());
     Ok(ExitCode::SUCCESS)

@@ -63,8 +63,7 @@ pub fn run(a: RunArgs) -> Outcome {
                 code: INTERRUPTED,
             }
         } else {
-            let bad = e.is_bad_input();
-            Failure::new(e, bad)
+            Failure::classify(e)
         }
     })?;
     let mut text = o.text;

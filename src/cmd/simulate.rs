@@ -17,11 +17,8 @@ pub struct SimulateArgs {
 }
 
 pub fn run(a: SimulateArgs) -> Outcome {
-    let steps =
-        crate::sim::simulate::run_simulate(&a.scenario, &a.inputs, &a.out).map_err(|e| {
-            let bad = e.is_bad_input();
-            Failure::new(e, bad)
-        })?;
+    let steps = crate::sim::simulate::run_simulate(&a.scenario, &a.inputs, &a.out)
+        .map_err(Failure::classify)?;
     eprintln!(
         "termwise: simulated {steps} control steps, wrote {}",
         a.out.display()

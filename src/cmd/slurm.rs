@@ -40,10 +40,8 @@ pub fn run(a: SlurmArgs) -> Outcome {
         account: a.account,
         report_time: d.report_time,
     };
-    let text = crate::study::slurm::cli_slurm(&a.experiment, a.out, &spec).map_err(|e| {
-        let bad = e.is_bad_input();
-        Failure::new(e, bad)
-    })?;
+    let text =
+        crate::study::slurm::cli_slurm(&a.experiment, a.out, &spec).map_err(Failure::classify)?;
     println!("{text}");
     Ok(ExitCode::SUCCESS)
 }

@@ -14,10 +14,8 @@ pub struct StatusArgs {
 }
 
 pub fn run(a: StatusArgs) -> Outcome {
-    let text = crate::study::status::cli_status(&a.results_dir, a.stale_after).map_err(|e| {
-        let bad = e.is_bad_input();
-        Failure::new(e, bad)
-    })?;
+    let text = crate::study::status::cli_status(&a.results_dir, a.stale_after)
+        .map_err(Failure::classify)?;
     print!("{text}");
     Ok(ExitCode::SUCCESS)
 }
