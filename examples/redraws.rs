@@ -7,7 +7,7 @@
 use std::path::PathBuf;
 use std::time::Instant;
 use termwise::study::experiment;
-use termwise::task::{begin_eval, Episode};
+use termwise::task::begin_eval;
 
 fn main() {
     let mut files: Vec<PathBuf> = std::env::args().skip(1).map(PathBuf::from).collect();
@@ -29,13 +29,7 @@ fn main() {
             }
         };
         let v = &exp.variants[0];
-        let mut ep = Episode::new(
-            v.scenario.clone(),
-            &v.reward,
-            &v.plan,
-            v.learner.gamma,
-            &v.observation,
-        );
+        let mut ep = v.episode();
         let t = Instant::now();
         let (mut redraws, mut needed, mut unsolved) = (0, 0, 0);
         for j in 0..1000 {

@@ -6,7 +6,7 @@ use std::path::Path;
 use termwise::control::RouteFollower;
 use termwise::sim::MAX_JOINTS;
 use termwise::study::experiment;
-use termwise::task::{begin_eval, Episode};
+use termwise::task::begin_eval;
 
 #[test]
 fn the_controller_reaches_every_quickstart_goal_without_contact_and_within_its_clearance() {
@@ -16,13 +16,7 @@ fn the_controller_reaches_every_quickstart_goal_without_contact_and_within_its_c
         .iter()
         .find(|v| v.name == "tracking-controller")
         .unwrap();
-    let mut ep = Episode::new(
-        v.scenario.clone(),
-        &v.reward,
-        &v.plan,
-        v.learner.gamma,
-        &v.observation,
-    );
+    let mut ep = v.episode();
     let n = v.scenario.n();
     let arm = &v.scenario.arm;
     let mut worst_dev: f64 = 0.0;

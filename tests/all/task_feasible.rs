@@ -13,13 +13,7 @@ use termwise::task::{begin_eval, feasibility_spec, Episode};
 fn quickstart_episode() -> (experiment::Experiment, Episode) {
     let exp = experiment::load(Path::new("experiments/quickstart.toml")).unwrap();
     let v = exp.variants[0].clone();
-    let ep = Episode::new(
-        v.scenario.clone(),
-        &v.reward,
-        &v.plan,
-        v.learner.gamma,
-        &v.observation,
-    );
+    let ep = v.episode();
     (exp, ep)
 }
 
@@ -84,13 +78,7 @@ fn joint_waypoint_entries_are_the_next_waypoints_joint_offsets() {
     v.observation.waypoints = true;
     v.observation.joint_waypoints = true;
     v.observation.clearance = false;
-    let mut ep = Episode::new(
-        v.scenario.clone(),
-        &v.reward,
-        &v.plan,
-        v.learner.gamma,
-        &v.observation,
-    );
+    let mut ep = v.episode();
     let k = v.plan.waypoints;
     let n = v.scenario.n();
     assert_eq!(ep.obs_dim(), ep.sim.obs_dim() + 2 * k + n * k);
