@@ -177,27 +177,25 @@ fn replay_reproduces_recorded_evaluation() {
         .output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    let progress = std::fs::read_to_string(out.join("with-path/seed-0/evaluations.csv")).unwrap();
-    let last: Vec<f64> = progress
-        .lines()
-        .last()
-        .unwrap()
-        .split(',')
-        .map(|c| c.parse().unwrap())
-        .collect();
-    let rows: Vec<Vec<f64>> = std::fs::read_to_string(&csv)
-        .unwrap()
+    // The last evaluation, read through the results format (typed rows, columns by name).
+    let progress =
+        termwise::results::read_evaluations(&out.join("with-path/seed-0/evaluations.csv")).unwrap();
+    let last = progress.last().unwrap();
+    let text = std::fs::read_to_string(&csv).unwrap();
+    let header: Vec<&str> = text.lines().next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let rows: Vec<Vec<f64>> = text
         .lines()
         .skip(1)
         .map(|l| l.split(',').map(|c| c.parse().unwrap()).collect())
         .collect();
-    let success = rows.iter().map(|r| r[1]).sum::<f64>() / rows.len() as f64;
-    let ret = rows.iter().map(|r| r[3]).sum::<f64>() / rows.len() as f64;
-    assert_eq!(success, last[1]);
+    let mean = |k: usize| rows.iter().map(|r| r[k]).sum::<f64>() / rows.len() as f64;
+    let (success, ret) = (mean(col("clean_success")), mean(col("return")));
+    assert_eq!(success, last.success_rate);
     assert!(
-        (ret - last[4]).abs() < 1e-9 * last[4].abs().max(1.0),
+        (ret - last.mean_return).abs() < 1e-9 * last.mean_return.abs().max(1.0),
         "{ret} vs {}",
-        last[4]
+        last.mean_return
     );
     let _ = std::fs::remove_dir_all(&d);
 }
