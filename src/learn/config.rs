@@ -19,12 +19,12 @@ pub struct PpoConfig {
     pub epochs: usize,
     /// Samples per minibatch. Default 256 (8 per epoch): Table 3 uses 64. 256 makes the update
     /// about 2.5x faster per iteration than 64 (benches/learn.rs); on the random-goal reach of
-    /// `tests/learn_reach.rs`, 128 was no faster to learn (first >= 90% success at 139k / 98k /
+    /// `tests/all/learn_reach.rs`, 128 was no faster to learn (first >= 90% success at 139k / 98k /
     /// 129k steps for seeds 1-3, against 111k / 119k / 96k with 256; both with the earlier
     /// `init_log_std` of -0.5 and a step size of 1e-3).
     pub minibatch_size: usize,
     /// Adam step size at the start of training. Default 3e-4 (Schulman et al. 2017, Table 3).
-    /// Measured on the random-goal reach of `tests/learn_reach.rs` (`init_log_std` 0): first at
+    /// Measured on the random-goal reach of `tests/all/learn_reach.rs` (`init_log_std` 0): first at
     /// 90% success or more after 66k / 76k / 66k / 111k / 80k / 78k / 51k environment steps for seeds
     /// 1-7, against 94k / 98k / 72k / 74k / 72k / 64k / 66k with 1e-3 (a tie); on the quickstart
     /// study (5 seeds per variant) 3e-4 brought every seed of both waypoint variants to 50%
@@ -41,7 +41,7 @@ pub struct PpoConfig {
     /// Adam epsilon. Default 1e-5 (common practice for PPO; Kingma & Ba use 1e-8).
     pub adam_epsilon: f64,
     /// Discount gamma per step. Default 0.99 (Schulman et al. 2017, Table 3). Measured on the
-    /// random-goal reach of `tests/learn_reach.rs` with the other defaults: first >= 90% success
+    /// random-goal reach of `tests/all/learn_reach.rs` with the other defaults: first >= 90% success
     /// at 121k / 86k / 68k / 98k / 78k / 76k / 49k environment steps for seeds 1-7, against 66k /
     /// 76k / 66k / 111k / 80k / 78k / 51k with 0.98 (a tie). With the earlier step size 1e-3
     /// and `init_log_std` -0.5, 0.98 had been the more reliable (7 of 7 seeds against 6 of 7).
@@ -74,7 +74,7 @@ pub struct PpoConfig {
     /// Default false: a state-independent learned log std (Schulman et al. 2017, section 6.1).
     pub state_dependent_std: bool,
     /// Initial log standard deviation of the Gaussian policy. Default 0.0 (std 1 in action units
-    /// [-1, 1]; common practice). Measured on the random-goal reach of `tests/learn_reach.rs`
+    /// [-1, 1]; common practice). Measured on the random-goal reach of `tests/all/learn_reach.rs`
     /// (step size 1e-3): first >= 90% success at 94k / 98k / 72k / 74k / 72k / 64k / 66k steps
     /// for seeds 1-7 with 0.0, against 111k / 119k / 96k / 123k / 186k / 80k / 86k with -0.5.
     pub init_log_std: f64,

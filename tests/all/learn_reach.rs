@@ -54,3 +54,56 @@ fn reaches_90_percent_from_random_starts_within_300k_steps() {
     println!("random starts, scenario goal: first >= 90% success at {hit:?} steps");
     assert!(hit.is_some(), "success only {last} after {BUDGET} steps");
 }
+
+/// A harder task: the quickstart study's `all-terms` variant (two-link arm among two solid discs, random
+/// collision-free starts and reachable goals, waypoint reward terms, the study's learner settings), trained by
+/// the study's own code path with a fixed seed and evaluated on the study's 30 fixed evaluation episodes every
+/// 51,200 steps. Success here is clean success (goal reached, no contact). Measured with the committed settings:
+/// seed 7 first at >= 0.8 after 153,600 steps (0.50 / 0.73 / 0.80 at the first three evaluations); the five study
+/// seeds of the quickstart reached 0.8 within 154k-205k steps with the planner's default 5 mm margin; with that
+/// margin this seed stayed at 0.70 from 153,600 to 300k steps (collision rate 0.23).
+#[test]
+fn quickstart_task_reaches_80_percent_clean_success_within_300k_steps() {
+    use std::sync::{Arc, Mutex};
+    use termwise::study::experiment;
+    use termwise::study::run::{build_envs, evaluate_policy};
+    use termwise::task::RunShared;
+
+    const HARD_BUDGET: u64 = 300_000;
+    const HARD_TARGET: f64 = 0.8;
+    let exp = experiment::load(std::path::Path::new("experiments/quickstart.toml")).unwrap();
+    let v = exp
+        .variants
+        .iter()
+        .find(|v| v.name == "all-terms")
+        .expect("the quickstart has an all-terms variant")
+        .clone();
+    let mut cfg = v.learner.clone();
+    cfg.lr_decay_steps = exp.study.budget as u64;
+    let seed = 7;
+    let shared = Arc::new(Mutex::new(RunShared::new(v.curriculum.build())));
+    let mut tr = Trainer::new(cfg, build_envs(&v, seed, &shared), seed).unwrap();
+    let every = exp.eval_every();
+    let mut next = every;
+    let mut best = 0.0f64;
+    while tr.env_steps() < HARD_BUDGET {
+        tr.iterate(&mut NoObserver).unwrap();
+        if tr.env_steps() >= next {
+            next += every;
+            let s = evaluate_policy(&exp, &v, tr.policy());
+            println!(
+                "steps {:>7} clean success {:.2} reached {:.2} collision rate {:.2}",
+                tr.env_steps(),
+                s.success_rate,
+                s.reached_rate,
+                s.collision_rate
+            );
+            best = best.max(s.success_rate);
+            if s.success_rate >= HARD_TARGET {
+                println!("first >= {HARD_TARGET} clean success at {} steps", tr.env_steps());
+                return;
+            }
+        }
+    }
+    panic!("clean success at most {best} within {HARD_BUDGET} steps");
+}
