@@ -100,7 +100,10 @@ fn quickstart_task_reaches_80_percent_clean_success_within_300k_steps() {
             );
             best = best.max(s.success_rate);
             if s.success_rate >= HARD_TARGET {
-                println!("first >= {HARD_TARGET} clean success at {} steps", tr.env_steps());
+                println!(
+                    "first >= {HARD_TARGET} clean success at {} steps",
+                    tr.env_steps()
+                );
                 return;
             }
         }
