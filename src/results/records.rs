@@ -161,6 +161,10 @@ pub struct RunRecord {
     pub env_steps: u64,
     #[serde(default)]
     pub wall_seconds: f64,
+    /// Environment steps per second of wall time so far, training and evaluation together (wall clock: differs
+    /// between repeats, like `wall_seconds`).
+    #[serde(default)]
+    pub steps_per_second: f64,
     /// Unix time of the last update; a `running` run whose heartbeat is old has died.
     #[serde(default)]
     pub heartbeat_unix: u64,
@@ -198,6 +202,7 @@ impl RunRecord {
             status: RunStatus::Running,
             env_steps: 0,
             wall_seconds: 0.0,
+            steps_per_second: 0.0,
             heartbeat_unix: now_unix(),
             version: env!("CARGO_PKG_VERSION").into(),
             message: None,
@@ -209,6 +214,11 @@ impl RunRecord {
     pub fn heartbeat(&mut self, env_steps: u64, wall: f64) {
         self.env_steps = env_steps;
         self.wall_seconds = wall;
+        self.steps_per_second = if wall > 0.0 {
+            env_steps as f64 / wall
+        } else {
+            0.0
+        };
         self.heartbeat_unix = now_unix();
     }
     pub fn finish(
@@ -227,6 +237,16 @@ impl RunRecord {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn heartbeat_records_the_measured_speed() {
+        let mut r = RunRecord::new("s", "v", 0, "h");
+        assert_eq!(r.steps_per_second, 0.0);
+        r.heartbeat(0, 0.0);
+        assert_eq!(r.steps_per_second, 0.0, "no division by a zero wall time");
+        r.heartbeat(51_200, 2.0);
+        assert_eq!(r.steps_per_second, 25_600.0);
+    }
 
     #[test]
     fn missing_is_never_read_from_a_file() {

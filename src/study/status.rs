@@ -57,6 +57,8 @@ pub struct CellStatus {
     pub state: CellState,
     /// Environment steps reached (0 when missing).
     pub env_steps: u64,
+    /// Measured environment steps per second of the run (0 when missing or not started).
+    pub steps_per_second: f64,
     /// Seconds since the last heartbeat (`None` when missing).
     pub heartbeat_age_s: Option<u64>,
     /// Why the state is what it is, when that needs saying (a dead lock owner, an unreadable run.json).
@@ -154,6 +156,7 @@ pub fn study_status(
                 seed,
                 state,
                 env_steps: run.as_ref().map_or(0, |r| r.env_steps),
+                steps_per_second: run.as_ref().map_or(0.0, |r| r.steps_per_second),
                 heartbeat_age_s: run.map(|r| now_unix.saturating_sub(r.heartbeat_unix)),
                 note,
             });
@@ -213,6 +216,23 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
         st.cells.len()
     );
     let _ = writeln!(s, "  {}", counts.join(", "));
+    let speeds: Vec<f64> = st
+        .cells
+        .iter()
+        .map(|c| c.steps_per_second)
+        .filter(|v| *v > 0.0)
+        .collect();
+    if !speeds.is_empty() {
+        let mean = speeds.iter().sum::<f64>() / speeds.len() as f64;
+        let (lo, hi) = speeds
+            .iter()
+            .fold((f64::INFINITY, 0.0f64), |(a, b), v| (a.min(*v), b.max(*v)));
+        let _ = writeln!(
+            s,
+            "  measured speed: {mean:.0} environment steps/s per run (training and evaluation; {lo:.0} to {hi:.0} over {} runs)",
+            speeds.len()
+        );
+    }
     for c in st.cells.iter().filter(|c| c.state != CellState::Done) {
         let age = c
             .heartbeat_age_s
@@ -225,13 +245,18 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
             .unwrap_or_default();
         let _ = writeln!(
             s,
-            "  cell {:>3}: {} seed {}: {} ({} of {} steps{}{})",
+            "  cell {:>3}: {} seed {}: {} ({} of {} steps{}{}{})",
             c.cell,
             c.variant,
             c.seed,
             c.state.as_str(),
             c.env_steps,
             st.budget_steps,
+            if c.steps_per_second > 0.0 {
+                format!(", {:.0} steps/s", c.steps_per_second)
+            } else {
+                String::new()
+            },
             age,
             note
         );
