@@ -127,6 +127,7 @@ fn assert_same_results(a: &Path, b: &Path) {
             let m = j.as_object_mut().unwrap();
             m.remove("wall_seconds");
             m.remove("heartbeat_unix");
+            m.remove("steps_per_second");
             j
         };
         assert_eq!(rec(&ra), rec(&rb), "{v} seed {s}: run.json differs");
