@@ -27,38 +27,7 @@ fn scenario_file(name: &str) -> String {
 
 /// A tiny study: 2 variants x 2 seeds of 1024 steps (two rollouts of 8 x 64), plus `extra` at the end.
 fn tiny(dir: &Path, file: &str, extra: &str) -> PathBuf {
-    let text = format!(
-        r#"
-[study]
-name = "tiny"
-seeds = 2
-budget = 1024
-eval_every = 512
-eval_episodes = 4
-[scenario]
-file = "{}"
-[reward.goal]
-bonus = 5.0
-[reward.time]
-[reward.waypoint_progress]
-[learner]
-num_envs = 8
-rollout_steps = 64
-minibatch_size = 128
-epochs = 2
-[[variant]]
-name = "with-path"
-[[variant]]
-name = "without-path"
-[variant.reward.waypoint_progress]
-weight = 0.0
-{extra}
-"#,
-        scenario_file("table-2link-2obs.toml")
-    );
-    let p = dir.join(file);
-    std::fs::write(&p, text).unwrap();
-    p
+    crate::common::tiny_study(dir, file, extra)
 }
 
 fn run_args(exp: &Path, out: &Path) -> Vec<String> {

@@ -18,41 +18,7 @@ fn scratch(name: &str) -> PathBuf {
 
 /// A tiny study: 2 variants x 2 seeds, two rollouts of 8 x 64 steps per run.
 fn tiny(dir: &Path, extra: &str) -> PathBuf {
-    let scen = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/experiments/scenarios/table-2link-2obs.toml"
-    );
-    let text = format!(
-        r#"
-[study]
-name = "tiny"
-seeds = 2
-budget = 1024
-eval_every = 512
-eval_episodes = 4
-[scenario]
-file = "{scen}"
-[reward.goal]
-bonus = 5.0
-[reward.time]
-[reward.waypoint_progress]
-[learner]
-num_envs = 8
-rollout_steps = 64
-minibatch_size = 128
-epochs = 2
-[[variant]]
-name = "with-path"
-[[variant]]
-name = "without-path"
-[variant.reward.waypoint_progress]
-weight = 0.0
-{extra}
-"#
-    );
-    let p = dir.join("tiny.toml");
-    std::fs::write(&p, text).unwrap();
-    p
+    crate::common::tiny_study(dir, "tiny.toml", extra)
 }
 
 fn run(exp: &Path, out: &Path, jobs: &str) -> std::process::Output {

@@ -60,26 +60,7 @@ pub(super) fn segment_box_closest(
         return best;
     }
     // Inside: minimise the (convex) signed distance along the segment.
-    let r = 0.618_033_988_749_894_8;
-    let (mut lo, mut hi) = (0.0f64, 1.0f64);
-    let mut x1 = hi - r * (hi - lo);
-    let mut x2 = lo + r * (hi - lo);
-    let (mut f1, mut f2) = (f(x1), f(x2));
-    for _ in 0..60 {
-        if f1 < f2 {
-            hi = x2;
-            x2 = x1;
-            f2 = f1;
-            x1 = hi - r * (hi - lo);
-            f1 = f(x1);
-        } else {
-            lo = x1;
-            x1 = x2;
-            f1 = f2;
-            x2 = lo + r * (hi - lo);
-            f2 = f(x2);
-        }
-    }
+    let ((x1, f1), (x2, f2)) = crate::sim::geometry::golden_section(f, 60);
     let (t, d) = if f1 < f2 { (x1, f1) } else { (x2, f2) };
     if d < best.1 {
         (t, d)
