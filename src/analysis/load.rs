@@ -3,8 +3,8 @@
 
 use super::AnalysisError;
 use crate::results::{
-    self, EvalRow, RunRecord, RunStatus, StudyRecord, TermTable, TrainingRow, VariantKind,
-    VariantRecord,
+    self, EvalRow, ProbeRow, RacingRecord, RunRecord, RunStatus, StudyRecord, TermTable,
+    TrainingRow, VariantKind, VariantRecord,
 };
 use std::path::{Path, PathBuf};
 
@@ -23,6 +23,8 @@ pub struct RunResults {
     pub terms: TermTable,
     /// training.csv rows, one per PPO iteration (empty for the baseline and for older runs).
     pub training: Vec<TrainingRow>,
+    /// probes.csv rows, one per probe condition evaluated after training (empty without probes).
+    pub probes: Vec<ProbeRow>,
 }
 
 /// A variant with its runs, one per planned seed.
@@ -43,6 +45,8 @@ pub struct StudyResults {
     pub study: StudyRecord,
     /// Variants in declaration order.
     pub variants: Vec<VariantRuns>,
+    /// racing.json of a raced study (None otherwise).
+    pub racing: Option<RacingRecord>,
 }
 
 /// Read study.json and every planned run folder under `dir`.
@@ -62,10 +66,15 @@ pub fn load_study(dir: &Path) -> Result<StudyResults, AnalysisError> {
     if !r.is_empty() && !study.variants.iter().any(|v| &v.name == r) {
         return Err(AnalysisError::UnknownReference { name: r.clone() });
     }
+    let racing = match study.racing {
+        Some(_) => results::read_racing(dir)?,
+        None => None,
+    };
     let mut variants = Vec::with_capacity(study.variants.len());
     for info in &study.variants {
-        let mut runs = Vec::with_capacity(study.seeds.len());
-        for &seed in &study.seeds {
+        let seeds = planned_seeds(&study, racing.as_ref(), info);
+        let mut runs = Vec::with_capacity(seeds.len());
+        for &seed in &seeds {
             let run_dir = results::run_dir(dir, &info.name, seed);
             // The classical controller is deterministic: the runner plans only seed 0 for it, so further
             // seeds of a baseline are read when present and never reported as missing.
@@ -83,7 +92,35 @@ pub fn load_study(dir: &Path) -> Result<StudyResults, AnalysisError> {
         dir: dir.to_path_buf(),
         study,
         variants,
+        racing,
     })
+}
+
+/// The seeds planned for a variant: study.json's seeds, or for a raced learned variant the seeds racing.json
+/// plans for it (before the first decision: the first rung's seeds).
+pub fn planned_seeds(
+    study: &StudyRecord,
+    racing: Option<&RacingRecord>,
+    info: &VariantRecord,
+) -> Vec<u64> {
+    let Some(plan) = &study.racing else {
+        return study.seeds.clone();
+    };
+    if info.kind == VariantKind::Baseline {
+        return study.seeds.clone();
+    }
+    let n = racing
+        .and_then(|r| r.variants.iter().find(|v| v.name == info.name))
+        .map(|v| v.seeds)
+        .or_else(|| plan.rung_seeds.first().copied())
+        .unwrap_or(study.seeds.len() as u64);
+    (0..n).collect()
+}
+
+/// Read one run folder (status, evaluations, reward terms, training, probes); a run without run.json is
+/// `Missing`.
+pub fn load_run_dir(run_dir: &Path, seed: u64) -> Result<RunResults, AnalysisError> {
+    load_run(run_dir, seed)
 }
 
 fn load_run(run_dir: &Path, seed: u64) -> Result<RunResults, AnalysisError> {
@@ -95,6 +132,7 @@ fn load_run(run_dir: &Path, seed: u64) -> Result<RunResults, AnalysisError> {
             progress: Vec::new(),
             terms: TermTable::default(),
             training: Vec::new(),
+            probes: Vec::new(),
         });
     };
     let progress_path = run_dir.join(results::EVALUATIONS_FILE);
@@ -110,6 +148,7 @@ fn load_run(run_dir: &Path, seed: u64) -> Result<RunResults, AnalysisError> {
         TermTable::default()
     };
     let training = results::read_training(&run_dir.join(results::TRAINING_FILE))?;
+    let probes = results::read_probes(run_dir)?;
     Ok(RunResults {
         seed,
         status: meta.status,
@@ -117,5 +156,6 @@ fn load_run(run_dir: &Path, seed: u64) -> Result<RunResults, AnalysisError> {
         progress,
         terms,
         training,
+        probes,
     })
 }

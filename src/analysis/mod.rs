@@ -5,7 +5,9 @@
 
 pub mod bootstrap;
 pub mod compare;
+pub mod groups;
 pub mod load;
+pub mod race;
 pub mod run_metrics;
 pub mod stats;
 pub mod summary;

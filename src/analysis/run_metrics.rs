@@ -232,6 +232,7 @@ mod tests {
             progress: rows,
             terms: Default::default(),
             training: Vec::new(),
+            probes: Vec::new(),
         }
     }
 

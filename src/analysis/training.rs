@@ -134,6 +134,7 @@ mod tests {
                     ..TrainingRow::default()
                 })
                 .collect(),
+            probes: Vec::new(),
         }
     }
 

@@ -11,14 +11,23 @@
 //!                          training.csv            TrainingRow per PPO iteration (reproducible)
 //!                          training-speed.csv      env_steps, steps_per_s (wall clock: differs run to run)
 //!                          policy.safetensors/.json, policy-best.safetensors/.json   checkpoints
+//!                          probes.csv              ProbeRow per probe condition (studies with probes)
+//! <out>/racing.json                     RacingRecord (studies with racing)
 //! ```
 
 pub mod evaluations;
+pub mod probes;
+pub mod racing;
 pub mod records;
 pub mod terms;
 pub mod training;
 
 pub use evaluations::{evaluation_columns, read_evaluations, write_evaluations, EvalRow};
+pub use probes::{read_probes, write_probes, ProbeRecord, ProbeRow, PROBES_FILE};
+pub use racing::{
+    read_racing, write_racing, Interval, RaceVariant, RacingPlan, RacingRecord, RungEntry, RungRecord,
+    RACING_FILE,
+};
 pub use records::{Change, RunRecord, RunStatus, StudyRecord, VariantKind, VariantRecord};
 pub use terms::{read_terms, write_terms, TermTable};
 pub use training::{read_training, write_training, write_training_speed, SpeedRow, TrainingRow};
@@ -46,7 +55,7 @@ pub const CHECKPOINT_FILE: &str = "policy.safetensors";
 pub const BEST_CHECKPOINT_FILE: &str = "policy-best.safetensors";
 
 /// Every file a run writes (cleared before a run restarts).
-pub const RUN_OUTPUTS: [&str; 8] = [
+pub const RUN_OUTPUTS: [&str; 9] = [
     EVALUATIONS_FILE,
     TERM_CONTRIBUTIONS_FILE,
     TRAINING_FILE,
@@ -55,6 +64,7 @@ pub const RUN_OUTPUTS: [&str; 8] = [
     "policy.json",
     BEST_CHECKPOINT_FILE,
     "policy-best.json",
+    PROBES_FILE,
 ];
 
 /// The folder of one run.

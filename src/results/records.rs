@@ -107,6 +107,12 @@ pub struct StudyRecord {
     /// The experiment file as given.
     #[serde(default)]
     pub config_toml: String,
+    /// Probe conditions every finished policy is evaluated on after training (absent: none).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub probes: Vec<super::ProbeRecord>,
+    /// Racing settings (absent: every variant runs every seed).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub racing: Option<super::RacingPlan>,
 }
 
 fn default_final_window() -> u64 {

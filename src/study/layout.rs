@@ -34,6 +34,8 @@ pub fn study_record(exp: &Experiment) -> StudyRecord {
             })
             .collect(),
         config_toml: exp.source.clone(),
+        probes: Vec::new(),
+        racing: None,
     }
 }
 

@@ -3,9 +3,9 @@
 //! reward-gaming check. Everything the charts and the report draw comes from here.
 
 use super::bootstrap::{
-    bootstrap_distribution, percentile_interval, stratified_bootstrap, stream_seed, BootstrapSpec,
-    Estimate,
+    bootstrap_distribution, stratified_bootstrap, stream_seed, BootstrapSpec, Estimate,
 };
+use super::groups::{iqm_ratio, rank_groups, Ranked};
 use super::compare::{mann_whitney, normal_quantile, probability_of_improvement, MannWhitney};
 use super::load::{StudyResults, VariantRuns};
 use super::run_metrics::{run_metrics, RunContext, RunMetrics, Threshold};
@@ -31,8 +31,6 @@ const TAG_EFFECT_STEPS: u64 = 30;
 const TAG_EFFECT_SUCCESS: u64 = 31;
 const TAG_EFFECT_AUC: u64 = 32;
 const TAG_EFFECT_COLLISION: u64 = 33;
-const TAG_GROUP_STEPS: u64 = 40;
-const TAG_GROUP_SUCCESS: u64 = 41;
 
 /// Summarise a loaded study.
 pub fn summarize(results: &StudyResults, opts: &AnalysisOptions) -> StudySummary {
@@ -94,71 +92,42 @@ fn success_of(runs: &[RunMetrics]) -> Vec<f64> {
     finite(runs.iter().filter_map(|m| m.final_success))
 }
 
-/// IQM ratio b / a of two samples (NaN when a's IQM is not positive).
-fn iqm_ratio(s: &[Vec<f64>]) -> f64 {
-    let d = iqm(&s[0]);
-    if d > 0.0 {
-        iqm(&s[1]) / d
-    } else {
-        f64::NAN
-    }
-}
-
-/// Rank groups. Walk the ranking best first; each variant joins the group of the best variant
-/// above it that heads a group (the group's leader) unless the data separate them: the
-/// stratified bootstrap interval of its steps-to-threshold ratio to the leader lies entirely above
-/// 1, or the interval of its final clean success minus the leader's lies entirely below 0.
-/// Intervals are at the study's confidence, Bonferroni-adjusted for the number of comparisons
-/// (Dunn, "Multiple comparisons among means", JASA 1961).
+/// Rank groups (the rule is `groups::rank_groups`): walk the ranking best first; each variant joins the
+/// group of the leader above it unless the data separate them. The first split is recorded as the gap.
 fn assign_groups(s: &mut StudySummary) {
     let order: Vec<usize> = s
         .ranking()
         .into_iter()
         .filter(|&i| s.variants[i].steps_to_threshold.iqm.point.is_finite())
         .collect();
-    let comparisons = order.len().saturating_sub(1).max(1);
-    let level = 1.0 - (1.0 - s.options.confidence) / comparisons as f64;
-    s.group_confidence = level;
-    let mut leader: Option<usize> = None;
-    let mut group = 0usize;
-    let mut gap = None;
-    for &i in &order {
-        let Some(l) = leader else {
-            leader = Some(i);
-            s.variants[i].group = Some(0);
-            continue;
-        };
-        let (a, b) = (&s.variants[l].runs, &s.variants[i].runs);
-        let seed = |tag| stream_seed(s.options.seed, &[l as u64, i as u64, tag]);
-        let ratio = bootstrap_distribution(
-            &[&steps_of(a), &steps_of(b)],
-            iqm_ratio,
-            s.options.resamples,
-            seed(TAG_GROUP_STEPS),
-        )
-        .map(|(p, v)| percentile_interval(p, &v, level))
-        .unwrap_or(Estimate::NONE);
-        let diff = bootstrap_distribution(
-            &[&success_of(a), &success_of(b)],
-            |x| iqm(&x[1]) - iqm(&x[0]),
-            s.options.resamples,
-            seed(TAG_GROUP_SUCCESS),
-        )
-        .map(|(p, v)| percentile_interval(p, &v, level))
-        .unwrap_or(Estimate::NONE);
-        let slower = ratio.lo.is_finite() && ratio.lo > 1.0;
-        let less_success = diff.hi.is_finite() && diff.hi < 0.0;
-        if slower || less_success {
-            group += 1;
-            leader = Some(i);
-            if group == 1 {
-                // The first split is always against the overall leader.
-                gap = Some((l, i, ratio));
-            }
-        }
-        s.variants[i].group = Some(group);
+    let data: Vec<(Vec<f64>, Vec<f64>)> = order
+        .iter()
+        .map(|&i| (steps_of(&s.variants[i].runs), success_of(&s.variants[i].runs)))
+        .collect();
+    let ranked: Vec<Ranked> = order
+        .iter()
+        .zip(&data)
+        .map(|(&index, (steps, success))| Ranked {
+            index,
+            steps,
+            success,
+        })
+        .collect();
+    let g = rank_groups(
+        &ranked,
+        s.options.confidence,
+        s.options.resamples,
+        s.options.seed,
+    );
+    s.group_confidence = g.level;
+    s.gap = g
+        .placed
+        .iter()
+        .find(|p| p.group == 1)
+        .map(|p| (p.leader, p.index, p.steps_ratio));
+    for p in &g.placed {
+        s.variants[p.index].group = Some(p.group);
     }
-    s.gap = gap;
 }
 
 /// How many seeds per variant would separate the top two ranked variants on steps-to-threshold:

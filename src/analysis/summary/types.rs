@@ -396,33 +396,18 @@ impl StudySummary {
     /// better), ties and undefined values broken by final clean success IQM (higher is better).
     /// Baselines are yardsticks, not competitors: they are not ranked (see [`Self::baselines`]).
     pub fn ranking(&self) -> Vec<usize> {
-        let mut idx: Vec<usize> = (0..self.variants.len())
+        let keys: Vec<(usize, f64, f64)> = (0..self.variants.len())
             .filter(|&i| self.variants[i].info.kind == VariantKind::Learned)
+            .map(|i| {
+                let v = &self.variants[i];
+                (
+                    i,
+                    v.steps_to_threshold.iqm.point,
+                    v.final_success.iqm.point,
+                )
+            })
             .collect();
-        let key = |v: &VariantSummary| {
-            let baseline = v.info.kind == VariantKind::Baseline;
-            let steps = v.steps_to_threshold.iqm.point;
-            let steps = if steps.is_finite() {
-                steps
-            } else {
-                f64::INFINITY
-            };
-            let success = v.final_success.iqm.point;
-            let success = if success.is_finite() {
-                success
-            } else {
-                f64::NEG_INFINITY
-            };
-            (baseline, steps, -success)
-        };
-        idx.sort_by(|&a, &b| {
-            let (ka, kb) = (key(&self.variants[a]), key(&self.variants[b]));
-            ka.0.cmp(&kb.0)
-                .then(ka.1.total_cmp(&kb.1))
-                .then(ka.2.total_cmp(&kb.2))
-                .then(a.cmp(&b))
-        });
-        idx
+        crate::analysis::groups::rank_order(&keys)
     }
 
     /// Indices of the baseline variants, in declaration order.
