@@ -129,7 +129,10 @@ fn a_known_winner_is_kept_and_clearly_worse_variants_stop() {
             assert!(v.success_diff.hi < 0.0 || v.steps_ratio.lo > 1.0, "{v:?}");
         }
     }
-    assert!(mid_stopped >= 30, "the somewhat worse variant stopped {mid_stopped} of 40 times");
+    assert!(
+        mid_stopped >= 30,
+        "the somewhat worse variant stopped {mid_stopped} of 40 times"
+    );
 }
 
 #[test]
@@ -149,7 +152,11 @@ fn keep_all_rate(variants: usize, seeds: u64, trials: u64, seed: u64, confidence
     let mut all = 0;
     for t in 0..trials {
         let runs = study(&vec![GOOD; variants], seeds, &mut rng);
-        if decide_at(&runs, t, confidence).verdicts.iter().all(|v| v.kept) {
+        if decide_at(&runs, t, confidence)
+            .verdicts
+            .iter()
+            .all(|v| v.kept)
+        {
             all += 1;
         }
     }

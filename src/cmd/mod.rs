@@ -7,6 +7,7 @@ pub mod check;
 pub mod curricula;
 pub mod plan;
 pub mod planners;
+pub mod probe;
 pub mod replay;
 pub mod report;
 pub mod run;
@@ -49,6 +50,9 @@ pub enum Command {
     Run(run::RunArgs),
     /// Validate an experiment file and print its plan with a wall-time estimate, without running it.
     Check(check::CheckArgs),
+    /// Evaluate a finished study's policies and controller on the probe conditions (`[[probe]]`) of an
+    /// experiment file, without retraining: rows go to each run's probes.csv, then the report is redrawn.
+    Probe(probe::ProbeArgs),
     /// Redraw summary.csv, the charts and report.html of a results folder from its files alone
     /// (also for a partially finished study).
     Report(report::ReportArgs),
@@ -166,6 +170,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Command::Run(a) => run::run(a),
         Command::Check(a) => check::run(a),
         Command::Report(a) => report::run(a),
+        Command::Probe(a) => probe::run(a),
         Command::Replay(a) => replay::run(a),
         Command::Slurm(a) => slurm::run(a),
         Command::Status(a) => status::run(a),

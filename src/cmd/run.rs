@@ -23,6 +23,10 @@ pub struct RunArgs {
     /// Skip drawing the report at the end.
     #[arg(long)]
     pub no_report: bool,
+    /// Racing: take the decisions of rungs 1 to K from the finished runs, write racing.json and run nothing
+    /// (the step between the stages of a raced study on a cluster; exit 1 while rung K cannot be decided).
+    #[arg(long, value_name = "K", conflicts_with = "cell")]
+    pub decide: Option<usize>,
 }
 
 /// Why the report after a study could not be drawn.
@@ -31,7 +35,7 @@ pub struct RunArgs {
 struct ReportFailed(#[source] crate::chart::ChartError);
 
 /// A flag set by the first Ctrl-C; a second one exits at once.
-fn stop_flag() -> Arc<AtomicBool> {
+pub(crate) fn stop_flag() -> Arc<AtomicBool> {
     let stop = Arc::new(AtomicBool::new(false));
     let flag = stop.clone();
     let _ = ctrlc::set_handler(move || {
@@ -46,7 +50,23 @@ fn stop_flag() -> Arc<AtomicBool> {
     stop
 }
 
+/// `--decide K`: the racing decision step alone.
+fn decide(a: &RunArgs, k: usize) -> Outcome {
+    let exp = crate::study::experiment::load(&a.experiment)
+        .map_err(|e| Failure::classify(crate::study::StudyError::from(e)))?;
+    let out = a
+        .out
+        .clone()
+        .unwrap_or_else(|| PathBuf::from("results").join(&exp.study.name));
+    let text = crate::study::race::cli_decide(&exp, &out, k).map_err(Failure::classify)?;
+    println!("{text}");
+    Ok(ExitCode::SUCCESS)
+}
+
 pub fn run(a: RunArgs) -> Outcome {
+    if let Some(k) = a.decide {
+        return decide(&a, k);
+    }
     crate::learn::pin_kernel_threads();
     let stop = stop_flag();
     let result = crate::study::cli_run(

@@ -25,8 +25,8 @@ pub mod training;
 pub use evaluations::{evaluation_columns, read_evaluations, write_evaluations, EvalRow};
 pub use probes::{read_probes, write_probes, ProbeRecord, ProbeRow, PROBES_FILE};
 pub use racing::{
-    read_racing, write_racing, Interval, RaceVariant, RacingPlan, RacingRecord, RungEntry, RungRecord,
-    RACING_FILE,
+    read_racing, write_racing, Interval, RaceVariant, RacingPlan, RacingRecord, RungEntry,
+    RungRecord, RACING_FILE,
 };
 pub use records::{Change, RunRecord, RunStatus, StudyRecord, VariantKind, VariantRecord};
 pub use terms::{read_terms, write_terms, TermTable};

@@ -33,7 +33,11 @@ pub struct Interval {
 impl Interval {
     /// The interval of three numbers, None unless all are finite.
     pub fn of(point: f64, lo: f64, hi: f64) -> Option<Interval> {
-        (point.is_finite() && lo.is_finite() && hi.is_finite()).then_some(Interval { point, lo, hi })
+        (point.is_finite() && lo.is_finite() && hi.is_finite()).then_some(Interval {
+            point,
+            lo,
+            hi,
+        })
     }
 }
 

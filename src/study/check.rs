@@ -40,11 +40,41 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
             let _ = writeln!(s, "      {} = {}   (base: {base})", c.key, c.value);
         }
     }
-    let _ = writeln!(s, "plan ({} runs, `--cell K` runs one):", runs.len());
-    for r in &runs {
+    if let Some(race) = &exp.racing {
+        let rungs: Vec<String> = race
+            .fractions
+            .iter()
+            .zip(&race.rung_seeds)
+            .map(|(f, n)| format!("{f} ({n} seeds)"))
+            .collect();
         let _ = writeln!(
             s,
-            "  cell {:>3}: {} seed {}",
+            "racing: rungs at {} of each variant's {} seeds; at each rung the variants the rank-group rule \
+             (confidence {}, Bonferroni-adjusted) puts behind the leading group stop, and their seeds go to the rest \
+             as further seeds, up to {} per variant",
+            rungs.join(", "),
+            exp.seeds(),
+            race.confidence,
+            race.max_seeds
+        );
+    }
+    for p in &exp.probes {
+        let _ = writeln!(s, "probe `{}`: {}", p.name, p.changes.join("; "));
+    }
+    let _ = writeln!(s, "plan ({} runs, `--cell K` runs one):", runs.len());
+    for r in &runs {
+        let stage = match &exp.racing {
+            Some(race) if exp.variants[r.variant].kind == VariantKind::Learned => {
+                match race::stage_of(&race.rung_seeds, r.seed) {
+                    0 => String::new(),
+                    k => format!("   (racing stage {k}: run if rung {k} keeps the variant)"),
+                }
+            }
+            _ => String::new(),
+        };
+        let _ = writeln!(
+            s,
+            "  cell {:>3}: {} seed {}{stage}",
             r.index, exp.variants[r.variant].name, r.seed
         );
     }

@@ -34,8 +34,13 @@ pub fn study_record(exp: &Experiment) -> StudyRecord {
             })
             .collect(),
         config_toml: exp.source.clone(),
-        probes: Vec::new(),
-        racing: None,
+        probes: exp.probes.iter().map(|p| p.record()).collect(),
+        racing: exp.racing.as_ref().map(|r| crate::results::RacingPlan {
+            rungs: r.fractions.clone(),
+            rung_seeds: r.rung_seeds.clone(),
+            max_seeds: r.max_seeds,
+            confidence: r.confidence,
+        }),
     }
 }
 

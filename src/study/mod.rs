@@ -5,8 +5,11 @@
 pub mod experiment;
 pub mod layout;
 pub mod lock;
+pub mod probe;
+pub mod race;
 pub mod run;
 pub mod slurm;
+mod slurm_race;
 pub mod status;
 pub mod variant;
 
@@ -45,10 +48,19 @@ pub enum StudyError {
         found: String,
         expected: String,
     },
+    #[error("racing rung {rung} cannot be decided yet{}: these runs of the stage before it are not finished: {runs} (run their cells first; `termwise status` lists them)", if *cell == usize::MAX { String::new() } else { format!(" (--cell {cell} comes after it)") })]
+    RungWaiting {
+        cell: usize,
+        rung: usize,
+        runs: String,
+    },
     #[error("--cell {cell} is outside the plan (0..{runs}); `termwise check` prints the plan")]
     NoSuchCell { cell: usize, runs: usize },
     #[error("run failed: {0}")]
     Run(String),
+    /// A results folder that does not belong to the experiment given.
+    #[error("{0}")]
+    Mismatch(String),
     #[error("{0}")]
     Slurm(#[from] slurm::SlurmError),
 }
@@ -61,6 +73,7 @@ impl StudyError {
             StudyError::Config(_)
                 | StudyError::ChangedConfig { .. }
                 | StudyError::NoSuchCell { .. }
+                | StudyError::Mismatch(_)
                 | StudyError::Slurm(_)
         )
     }
@@ -79,6 +92,14 @@ pub struct StudyOutcome {
     pub busy: Vec<(String, u64, lock::LockOwner)>,
     /// Runs another process finished after this one planned its work (counted in `skipped` too).
     pub finished_elsewhere: usize,
+    /// Finished runs evaluated on probes they lacked (nothing retrained).
+    pub probed: usize,
+    /// Racing: cells whose run racing does not need, with why.
+    pub not_needed: Vec<String>,
+    /// Racing: variants stopped, with the rung.
+    pub stopped: Vec<(String, u64)>,
+    /// Racing: the rung that could not be decided because runs of the stage before it are unfinished.
+    pub waiting: Option<(usize, String)>,
 }
 
 /// Whether a run's folder already holds a finished run of this config; a different config hash is an error.
@@ -117,7 +138,7 @@ fn pending(runs: &[RunSpec], exp: &Experiment) -> Result<(Vec<RunSpec>, usize), 
     let mut todo = Vec::new();
     let mut skipped = 0;
     for r in runs {
-        if finished(r, exp)? {
+        if finished(r, exp)? && !probe::probes_stale(exp, r)? {
             skipped += 1
         } else {
             todo.push(r.clone())
@@ -129,6 +150,8 @@ fn pending(runs: &[RunSpec], exp: &Experiment) -> Result<(Vec<RunSpec>, usize), 
 /// What a worker did with one planned run.
 enum Claim {
     Ran(RunStatus),
+    /// A finished run evaluated on the probes it lacked.
+    Probed,
     Busy(lock::LockOwner),
     FinishedElsewhere,
 }
@@ -150,13 +173,23 @@ fn claim_and_execute(
         lock::Acquire::Busy(owner) => return Ok(Claim::Busy(owner)),
     };
     if finished(r, exp)? {
+        if probe::probes_stale(exp, r)? {
+            probe::probe_run(exp, r)?;
+            return Ok(Claim::Probed);
+        }
         return Ok(Claim::FinishedElsewhere);
     }
     crate::fsio::remove_stale_temps(&r.dir, true).map_err(io)?;
-    run::execute(exp, r, stop, on_progress).map(Claim::Ran)
+    let st = run::execute(exp, r, stop, on_progress)?;
+    if st == RunStatus::Done && !exp.probes.is_empty() && !stop.load(Ordering::SeqCst) {
+        // The probe conditions, on the final policy (an interrupted probe step is redone by the next run).
+        probe::probe_run(exp, r)?;
+    }
+    Ok(Claim::Ran(st))
 }
 
-/// Run a study (or one cell of it) with `jobs` workers; `stop` is raised by Ctrl-C.
+/// Run a study (or one cell of it) with `jobs` workers; `stop` is raised by Ctrl-C. A raced study runs stage
+/// by stage, deciding each rung from the finished runs before the next stage (`race`).
 pub fn run_study(
     exp: &Experiment,
     out: &Path,
@@ -172,6 +205,7 @@ pub fn run_study(
         })?],
         None => all.clone(),
     };
+    // A changed configuration is refused before anything is written.
     let (todo, skipped) = pending(&selected, exp)?;
     std::fs::create_dir_all(out).map_err(|source| StudyError::Io {
         path: out.to_path_buf(),
@@ -186,12 +220,37 @@ pub fn run_study(
     layout::write_study_json(out, exp)?;
     let mut outcome = StudyOutcome {
         out: out.to_path_buf(),
-        skipped,
         ..Default::default()
     };
-    if todo.is_empty() {
-        tracing::info!("all {} selected runs are already finished", selected.len());
+    let Some(race) = &exp.racing else {
+        outcome.skipped = skipped;
+        run_batch(exp, todo, jobs, stop, &mut outcome)?;
         return Ok(outcome);
+    };
+    race::run_raced(
+        exp,
+        race,
+        out,
+        &all,
+        cell.and(selected.first()),
+        jobs,
+        stop,
+        &mut outcome,
+    )?;
+    Ok(outcome)
+}
+
+/// Run `todo` with `jobs` workers, adding what happened to `outcome`.
+fn run_batch(
+    exp: &Experiment,
+    todo: Vec<RunSpec>,
+    jobs: usize,
+    stop: &AtomicBool,
+    outcome: &mut StudyOutcome,
+) -> Result<(), StudyError> {
+    if todo.is_empty() {
+        tracing::info!("all selected runs are already finished");
+        return Ok(());
     }
     let tty = std::io::stderr().is_terminal();
     let multi = MultiProgress::with_draw_target(if tty {
@@ -290,6 +349,10 @@ pub fn run_study(
                 outcome.finished_elsewhere += 1;
                 continue;
             }
+            Claim::Probed => {
+                outcome.probed += 1;
+                continue;
+            }
         };
         outcome.ran += 1;
         match st {
@@ -300,8 +363,8 @@ pub fn run_study(
             }
         }
     }
-    tracing::info!("study finished in {:.1} s", started.elapsed().as_secs_f64());
-    Ok(outcome)
+    tracing::info!("runs finished in {:.1} s", started.elapsed().as_secs_f64());
+    Ok(())
 }
 
 fn outcome_total(exp: &Experiment) -> usize {
@@ -349,6 +412,32 @@ pub fn cli_run(
         o.skipped,
         out.display()
     );
+    for note in &o.not_needed {
+        text.push_str(&format!("\ntermwise: {note}"));
+    }
+    if !o.stopped.is_empty() {
+        let list: Vec<String> = o
+            .stopped
+            .iter()
+            .map(|(v, k)| format!("{v} (rung {k})"))
+            .collect();
+        text.push_str(&format!(
+            "\ntermwise: racing stopped {} variants: {}; racing.json and the report say why",
+            list.len(),
+            list.join(", ")
+        ));
+    }
+    if let Some((rung, runs)) = &o.waiting {
+        text.push_str(&format!(
+            "\ntermwise: racing rung {rung} waits for unfinished runs: {runs}; run the same command again"
+        ));
+    }
+    if o.probed > 0 {
+        text.push_str(&format!(
+            "\ntermwise: {} finished runs evaluated on the probe conditions they lacked",
+            o.probed
+        ));
+    }
     if !o.busy.is_empty() {
         let list: Vec<String> = o
             .busy

@@ -25,8 +25,12 @@ pub struct RunSpec {
     pub config_hash: String,
 }
 
-/// The plan: every (variant, seed), variant-major.
+/// The plan: every (variant, seed), variant-major; for a raced study every run racing may need, stage-major
+/// (`race::plan`).
 pub fn plan_runs(exp: &Experiment, out: &Path) -> Vec<RunSpec> {
+    if let Some(race) = &exp.racing {
+        return super::race::plan(exp, race, out);
+    }
     let mut runs = Vec::new();
     for (vi, v) in exp.variants.iter().enumerate() {
         let seeds = if v.kind == VariantKind::Baseline {

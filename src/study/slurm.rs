@@ -71,6 +71,8 @@ pub struct SlurmFiles {
     pub runs: usize,
     /// Runs already finished with the same configuration (their tasks end at once).
     pub finished: usize,
+    /// A raced study: the stage arrays and decision jobs after the first stage, in submission order.
+    pub stages: Vec<PathBuf>,
 }
 
 fn check_time(t: &str) -> Result<(), SlurmError> {
@@ -141,12 +143,12 @@ pub fn shell_quote(s: &str) -> String {
     format!("'{}'", s.replace('\'', r"'\''"))
 }
 
-fn q(p: &Path) -> String {
+pub(super) fn q(p: &Path) -> String {
     shell_quote(&p.to_string_lossy())
 }
 
 /// A job name Slurm accepts and a person can read: the study name with other characters replaced.
-fn job_name(study: &str) -> String {
+pub(super) fn job_name(study: &str) -> String {
     let s: String = study
         .chars()
         .map(|c| {
@@ -161,7 +163,7 @@ fn job_name(study: &str) -> String {
 }
 
 /// The `#SBATCH` lines shared by both jobs.
-fn common_options(s: &mut String, spec: &SlurmSpec, time: &str) {
+pub(super) fn common_options(s: &mut String, spec: &SlurmSpec, time: &str) {
     let _ = writeln!(s, "#SBATCH --ntasks=1");
     let _ = writeln!(s, "#SBATCH --cpus-per-task=1");
     let _ = writeln!(s, "#SBATCH --time={time}");
@@ -259,7 +261,7 @@ fn io(path: &Path) -> impl FnOnce(std::io::Error) -> StudyError + '_ {
     }
 }
 
-fn write_executable(path: &Path, text: &str) -> Result<(), StudyError> {
+pub(super) fn write_executable(path: &Path, text: &str) -> Result<(), StudyError> {
     write_atomic(path, text.as_bytes()).map_err(io(path))?;
     #[cfg(unix)]
     {
@@ -304,6 +306,17 @@ pub fn write_scripts(
     let slurm_dir = out.join("slurm");
     let logs = slurm_dir.join("logs");
     std::fs::create_dir_all(&logs).map_err(io(&logs))?;
+    if let Some(race) = &exp.racing {
+        return super::slurm_race::write_raced(
+            &exp,
+            race,
+            &experiment_abs,
+            &out,
+            &exe,
+            spec,
+            (&runs, finished),
+        );
+    }
     let files = SlurmFiles {
         cells: slurm_dir.join("cells.sbatch"),
         report: slurm_dir.join("report.sbatch"),
@@ -311,6 +324,7 @@ pub fn write_scripts(
         logs,
         runs: runs.len(),
         finished,
+        stages: Vec::new(),
     };
     write_executable(
         &files.cells,
@@ -343,6 +357,9 @@ pub fn cli_slurm(
         f.runs, f.finished
     );
     let _ = writeln!(s, "  {}   job array, one task per run", f.cells.display());
+    for p in &f.stages {
+        let _ = writeln!(s, "  {}   racing: after the stage before it", p.display());
+    }
     let _ = writeln!(s, "  {}   report job, after the array", f.report.display());
     let _ = writeln!(s, "  {}   submits both", f.submit.display());
     let _ = writeln!(s, "submit with:  bash {}", f.submit.display());

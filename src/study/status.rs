@@ -24,6 +24,10 @@ pub enum CellState {
     Missing,
     /// A run.json that cannot be read or parsed (the run restarts when run again).
     Unreadable,
+    /// Racing: a run the study does not need (its variant stopped, or no seed of the reinvested budget).
+    NotNeeded,
+    /// Racing: a run needed only if a rung still to be decided keeps its variant.
+    Later,
 }
 
 impl CellState {
@@ -36,6 +40,8 @@ impl CellState {
             CellState::Interrupted => "interrupted",
             CellState::Missing => "missing",
             CellState::Unreadable => "unreadable",
+            CellState::NotNeeded => "not needed (racing)",
+            CellState::Later => "after a racing decision",
         }
     }
     /// True when running the cell again is needed to finish the study.
@@ -111,13 +117,71 @@ pub fn study_status(
 ) -> Result<StudyStatus, StudyError> {
     let rec: StudyRecord = crate::results::read_study(dir)?;
     let mut cells = Vec::new();
-    for v in &rec.variants {
-        let seeds: Vec<u64> = if v.kind == VariantKind::Baseline {
-            vec![0]
-        } else {
-            rec.seeds.clone()
-        };
-        for seed in seeds {
+    let order: Vec<(usize, u64)> = match &rec.racing {
+        None => rec
+            .variants
+            .iter()
+            .enumerate()
+            .flat_map(|(vi, v)| {
+                let seeds: Vec<u64> = if v.kind == VariantKind::Baseline {
+                    vec![0]
+                } else {
+                    rec.seeds.clone()
+                };
+                seeds.into_iter().map(move |s| (vi, s))
+            })
+            .collect(),
+        Some(plan) => {
+            let kinds: Vec<VariantKind> = rec.variants.iter().map(|v| v.kind).collect();
+            super::race::cell_order(&kinds, &plan.rung_seeds, plan.max_seeds)
+        }
+    };
+    let racing = match &rec.racing {
+        Some(_) => crate::results::read_racing(dir)?,
+        None => None,
+    };
+    for (vi, seed) in order {
+        let v = &rec.variants[vi];
+        {
+            if let Some(plan) = &rec.racing {
+                let planned = crate::analysis::load::planned_seeds(&rec, racing.as_ref(), v);
+                let done_racing = racing
+                    .as_ref()
+                    .is_some_and(|r| r.rungs.len() == plan.rung_seeds.len());
+                let stopped = racing
+                    .as_ref()
+                    .and_then(|r| r.variants.iter().find(|x| x.name == v.name))
+                    .and_then(|x| x.stopped_at);
+                let wanted = v.kind == VariantKind::Baseline && seed == 0
+                    || v.kind == VariantKind::Learned && planned.contains(&seed);
+                if !wanted {
+                    let (state, note) = match stopped {
+                        Some(k) => (
+                            CellState::NotNeeded,
+                            format!("racing stopped {} at rung {k}", v.name),
+                        ),
+                        None if done_racing => (
+                            CellState::NotNeeded,
+                            "beyond the seeds racing gave it".to_string(),
+                        ),
+                        None => (
+                            CellState::Later,
+                            "needed if the next rung keeps its variant".to_string(),
+                        ),
+                    };
+                    cells.push(CellStatus {
+                        cell: cells.len(),
+                        variant: v.name.clone(),
+                        seed,
+                        state,
+                        env_steps: 0,
+                        steps_per_second: 0.0,
+                        heartbeat_age_s: None,
+                        note: Some(note),
+                    });
+                    continue;
+                }
+            }
             let run_dir = crate::results::run_dir(dir, &v.name, seed);
             let (run, mut state, mut note) =
                 match read_run(&run_dir).map_err(|e| crate::error_chain::error_chain_text(&e)) {
@@ -202,10 +266,17 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
         CellState::Interrupted,
         CellState::Missing,
         CellState::Unreadable,
+        CellState::Later,
+        CellState::NotNeeded,
+    ];
+    let optional = [
+        CellState::Unreadable,
+        CellState::Later,
+        CellState::NotNeeded,
     ];
     let counts: Vec<String> = states
         .iter()
-        .filter(|&&c| c != CellState::Unreadable || st.count(c) > 0)
+        .filter(|&&c| !optional.contains(&c) || st.count(c) > 0)
         .map(|&c| format!("{} {}", st.count(c), c.as_str()))
         .collect();
     let _ = writeln!(
@@ -233,7 +304,8 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
             speeds.len()
         );
     }
-    for c in st.cells.iter().filter(|c| c.state != CellState::Done) {
+    let quiet = [CellState::Done, CellState::Later, CellState::NotNeeded];
+    for c in st.cells.iter().filter(|c| !quiet.contains(&c.state)) {
         let age = c
             .heartbeat_age_s
             .map(|a| format!(", last heartbeat {a} s ago"))
@@ -275,7 +347,15 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
         );
     } else if !rerun.is_empty() {
         let script = st.dir.join("slurm").join("cells.sbatch");
-        if script.is_file() {
+        let staged = st.dir.join("slurm").join("cells-stage-0.sbatch");
+        if staged.is_file() {
+            let _ = writeln!(
+                s,
+                "to finish: a raced study runs stage by stage; submit again with `bash {}` (finished runs are skipped), or rerun cells {} with the stage script holding them",
+                st.dir.join("slurm").join("submit.sh").display(),
+                cell_ranges(&rerun)
+            );
+        } else if script.is_file() {
             let _ = writeln!(
                 s,
                 "to finish: run these cells again, e.g. `sbatch --array={} {}`",

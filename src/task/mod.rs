@@ -8,6 +8,7 @@ pub mod episode;
 pub mod eval;
 pub mod metrics;
 pub mod observation;
+pub mod probe;
 pub mod trajectory;
 
 pub use env::{RunShared, TaskEnv};
@@ -15,4 +16,5 @@ pub use episode::{feasibility_spec, Episode, Redraws, MAX_REDRAWS};
 pub use eval::{baseline_actor, begin_eval, eval_redraws, evaluate, run_episode, Actor};
 pub use metrics::{rms_per_joint, EpisodeMetrics, EvalSummary};
 pub use observation::ObservationSpec;
+pub use probe::{evaluate_probe, ProbeCondition, ProbeOutcome};
 pub use trajectory::{trajectory_metrics, TrajectoryMetrics};

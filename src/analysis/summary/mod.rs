@@ -5,8 +5,8 @@
 use super::bootstrap::{
     bootstrap_distribution, stratified_bootstrap, stream_seed, BootstrapSpec, Estimate,
 };
-use super::groups::{iqm_ratio, rank_groups, Ranked};
 use super::compare::{mann_whitney, normal_quantile, probability_of_improvement, MannWhitney};
+use super::groups::{iqm_ratio, rank_groups, Ranked};
 use super::load::{StudyResults, VariantRuns};
 use super::run_metrics::{run_metrics, RunContext, RunMetrics, Threshold};
 use super::stats::{finite, iqm, mean, sample_std, wilson_interval};
@@ -102,7 +102,12 @@ fn assign_groups(s: &mut StudySummary) {
         .collect();
     let data: Vec<(Vec<f64>, Vec<f64>)> = order
         .iter()
-        .map(|&i| (steps_of(&s.variants[i].runs), success_of(&s.variants[i].runs)))
+        .map(|&i| {
+            (
+                steps_of(&s.variants[i].runs),
+                success_of(&s.variants[i].runs),
+            )
+        })
         .collect();
     let ranked: Vec<Ranked> = order
         .iter()

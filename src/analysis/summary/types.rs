@@ -400,11 +400,7 @@ impl StudySummary {
             .filter(|&i| self.variants[i].info.kind == VariantKind::Learned)
             .map(|i| {
                 let v = &self.variants[i];
-                (
-                    i,
-                    v.steps_to_threshold.iqm.point,
-                    v.final_success.iqm.point,
-                )
+                (i, v.steps_to_threshold.iqm.point, v.final_success.iqm.point)
             })
             .collect();
         crate::analysis::groups::rank_order(&keys)

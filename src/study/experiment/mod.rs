@@ -17,11 +17,15 @@ use std::sync::Arc;
 use toml::{Table, Value};
 
 mod parse;
+mod probe;
+mod racing;
 #[cfg(test)]
 mod tests;
 mod tree;
 mod validate;
 pub use parse::*;
+pub use probe::{ProbeSpec, MAX_PROBES};
+pub use racing::{RaceSpec, RacingSettings, MAX_RUNGS, MIN_RUNG_SEEDS};
 pub use tree::*;
 use validate::*;
 
@@ -51,6 +55,9 @@ pub struct StudySettings {
     /// Evaluations averaged for "final" performance. Default 3.
     #[serde(default = "default_final_window")]
     pub final_window: i64,
+    /// Racing (`[study.racing]`): stop variants that are clearly behind at rungs. Default: none.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub racing: Option<RacingSettings>,
 }
 fn default_eval_episodes() -> i64 {
     40
@@ -113,6 +120,10 @@ pub struct Experiment {
     /// The experiment file as given.
     pub source: String,
     pub path: PathBuf,
+    /// Probe conditions evaluated after training (`[[probe]]`).
+    pub probes: Vec<ProbeSpec>,
+    /// Racing settings (`[study.racing]`), validated.
+    pub racing: Option<RaceSpec>,
 }
 
 impl Experiment {

@@ -24,6 +24,8 @@ pub(super) struct RawExperiment {
     generate: Option<GenerateSpec>,
     #[serde(default)]
     variant: Vec<Table>,
+    #[serde(default)]
+    probe: Vec<probe::RawProbe>,
 }
 
 /// Read and validate an experiment file.
@@ -337,10 +339,28 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
             ));
         }
     }
+    let learned = variants
+        .iter()
+        .filter(|v| v.kind == VariantKind::Learned)
+        .count();
+    let racing = match &st.racing {
+        Some(r) => Some(racing::validate_racing(
+            r,
+            st.seeds,
+            learned,
+            variants.len() - learned,
+            o,
+            src,
+        )?),
+        None => None,
+    };
+    let probes = probe::validate_probes(&raw.probe, &variants, st, o, src)?;
     Ok(Experiment {
         study: raw.study,
         variants,
         source: src.to_string(),
         path: path.to_path_buf(),
+        probes,
+        racing,
     })
 }
