@@ -7,6 +7,7 @@ pub mod bootstrap;
 pub mod compare;
 pub mod groups;
 pub mod load;
+pub mod probes;
 pub mod race;
 pub mod run_metrics;
 pub mod stats;

@@ -84,7 +84,7 @@ pub struct GridHeatmap<'a> {
 }
 
 /// Lightness ramp from pale sand (t = 0, worse) to deep blue (t = 1, better).
-fn ramp(t: f64) -> RGBColor {
+pub(super) fn ramp(t: f64) -> RGBColor {
     let stops = [
         (247.0, 241.0, 222.0),
         (122.0, 166.0, 180.0),

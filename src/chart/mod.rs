@@ -6,6 +6,7 @@ pub mod curves;
 pub mod heatmap;
 pub mod html;
 pub mod panels;
+pub mod probes;
 pub mod render;
 pub mod style;
 pub mod table;
@@ -125,6 +126,12 @@ pub fn write_report_from(
     if let Some(layout) = heatmap::grid_layout(summary) {
         charts.push(render::render(
             &heatmap::GridHeatmap { summary, layout },
+            &charts_dir,
+        )?);
+    }
+    if let Some(probes) = &summary.probes {
+        charts.push(render::render(
+            &probes::ProbeHeatmap { summary, probes },
             &charts_dir,
         )?);
     }

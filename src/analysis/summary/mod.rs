@@ -76,6 +76,8 @@ pub fn summarize(results: &StudyResults, opts: &AnalysisOptions) -> StudySummary
         group_confidence: opts.confidence,
         seeds_needed: None,
         gap: None,
+        probes: super::probes::summarize_probes(results, opts.spec(), opts.seed),
+        racing: results.racing.clone(),
     };
     assign_groups(&mut summary);
     summary.seeds_needed = seeds_needed(&summary);

@@ -389,6 +389,10 @@ pub struct StudySummary {
     /// over the leader's with its CI at `group_confidence` (None when every ranked variant is
     /// tied with the leader).
     pub gap: Option<(usize, usize, Estimate)>,
+    /// The probe conditions' figures (None without probes).
+    pub probes: Option<crate::analysis::probes::ProbeSummary>,
+    /// racing.json of a raced study.
+    pub racing: Option<crate::results::RacingRecord>,
 }
 
 impl StudySummary {

@@ -5,10 +5,13 @@
 use super::render::ChartFiles;
 use super::style::fmt_steps;
 use crate::analysis::{
-    verdict, Estimate, RunStatus, StudySummary, Threshold, VariantKind, VariantSummary, Verdict,
+    verdict, Estimate, RunStatus, StudySummary, VariantKind, VariantSummary, Verdict,
 };
 use std::fmt::Write;
 
+mod probes;
+mod racing;
+mod status;
 mod words;
 pub use words::*;
 
@@ -164,7 +167,9 @@ pub fn report_html(s: &StudySummary, charts: &[ChartFiles]) -> String {
         );
     }
     answer(&mut h, s);
+    racing::racing_section(&mut h, s, swatch);
     summary_table(&mut h, s);
+    probes::probes_section(&mut h, s, swatch);
     changes(&mut h, s);
     h.push_str("<h2>Charts</h2>");
     for c in charts {
@@ -177,7 +182,7 @@ pub fn report_html(s: &StudySummary, charts: &[ChartFiles]) -> String {
         );
     }
     super::training::html_panel(&mut h, s, swatch);
-    run_status(&mut h, s);
+    status::run_status(&mut h, s);
     methods(&mut h, s);
     h.push_str("</main></body></html>\n");
     h
@@ -429,44 +434,6 @@ fn changes(h: &mut String, s: &StudySummary) {
             esc(&s.study.config_toml)
         );
     }
-}
-
-fn run_status(h: &mut String, s: &StudySummary) {
-    h.push_str("<h2>Run status</h2><table><tr><th>variant</th>");
-    for seed in &s.study.seeds {
-        let _ = write!(h, "<th>seed {seed}</th>");
-    }
-    h.push_str("</tr>");
-    for v in &s.variants {
-        let _ = write!(h, "<tr><td>{}</td>", swatch(v));
-        for seed in &s.study.seeds {
-            match v.runs.iter().find(|m| m.seed == *seed) {
-                Some(m) => {
-                    let reach = match m.steps_to_threshold {
-                        Threshold::Reached(x) => format!(
-                            "<br><span class=ci>threshold at {}</span>",
-                            fmt_steps(x as f64)
-                        ),
-                        Threshold::Censored(_) => {
-                            "<br><span class=ci>threshold not reached</span>".into()
-                        }
-                        _ => String::new(),
-                    };
-                    let _ = write!(
-                        h,
-                        "<td class=\"st-{0}\">{0}<br><span class=ci>{1} steps, {2} evals</span>{3}</td>",
-                        m.status.as_str(),
-                        fmt_steps(m.last_step as f64),
-                        m.evaluations,
-                        reach
-                    );
-                }
-                None => h.push_str("<td>—</td>"),
-            }
-        }
-        h.push_str("</tr>");
-    }
-    h.push_str("</table>");
 }
 
 fn methods(h: &mut String, s: &StudySummary) {
