@@ -369,6 +369,9 @@ pub fn cli_decide(exp: &Experiment, out: &Path, upto: usize) -> Result<String, S
             race.rung_seeds.len()
         )));
     }
+    if !out.join(results::STUDY_FILE).is_file() {
+        super::layout::write_study_json(out, exp)?;
+    }
     let st = decide(exp, race, out, upto)?;
     if let Some((rung, runs)) = &st.waiting {
         return Err(StudyError::RungWaiting {

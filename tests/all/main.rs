@@ -23,5 +23,7 @@ mod robustness_cli;
 mod sim_contact;
 mod sim_physics;
 mod study_cli;
+mod study_probes;
+mod study_racing;
 mod study_slurm;
 mod task_feasible;
