@@ -401,3 +401,34 @@ pub fn cli_decide(exp: &Experiment, out: &Path, upto: usize) -> Result<String, S
     }
     Ok(text)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cells_are_stage_major_and_stages_follow_the_rungs() {
+        // The plan's own definition (no outside source): stage 0 holds the controller and the first rung's
+        // seeds, each later stage the seeds up to the next rung, the last every seed up to max_seeds.
+        let kinds = [Kind::Learned, Kind::Baseline, Kind::Learned];
+        let cells = cell_order(&kinds, &[2, 3], 5);
+        assert_eq!(
+            cells,
+            vec![
+                (0, 0),
+                (0, 1),
+                (1, 0),
+                (2, 0),
+                (2, 1),
+                (0, 2),
+                (2, 2),
+                (0, 3),
+                (0, 4),
+                (2, 3),
+                (2, 4)
+            ]
+        );
+        let stages: Vec<usize> = (0..6).map(|s| stage_of(&[2, 3], s)).collect();
+        assert_eq!(stages, vec![0, 0, 1, 2, 2, 2]);
+    }
+}
