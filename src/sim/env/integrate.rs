@@ -77,14 +77,17 @@ impl ArmEnv {
     /// the start of each physics step, the torque that produces the commanded acceleration (inverse dynamics);
     /// when it is within the torque limits the commanded acceleration is realised exactly over the step
     /// (constant-acceleration update, exact for either integrator); when it is not, the clipped torque is held
-    /// for the step and integrated through the forward dynamics, so the limits bite.
+    /// for the step and integrated through the forward dynamics, so the limits bite. With a `control_model`
+    /// (model error) the torque comes from the model's inverse dynamics and always goes through the simulated
+    /// arm's forward dynamics, so the realised acceleration differs from the command.
     pub(super) fn physics_step(&self, s: &mut ArmState, u: &JointVec) {
         let arm = &self.sc.arm;
         let n = arm.n();
         match self.sc.control {
             ControlMode::Torque => self.torque_step(s, u),
             ControlMode::Acceleration => {
-                let mut tau = arm.inverse_dynamics_trig(&Trig::new(&s.q, n), &s.dq, u);
+                let model = self.sc.control_model.as_ref().unwrap_or(arm);
+                let mut tau = model.inverse_dynamics_trig(&Trig::new(&s.q, n), &s.dq, u);
                 let mut clipped = false;
                 for (t, l) in tau.iter_mut().zip(&arm.links) {
                     if t.abs() > l.tau_max {
@@ -92,7 +95,7 @@ impl ArmEnv {
                         clipped = true;
                     }
                 }
-                if clipped {
+                if clipped || self.sc.control_model.is_some() {
                     self.torque_step(s, &tau);
                 } else {
                     let h = self.sc.dt;

@@ -158,6 +158,10 @@ pub struct Scenario {
     pub obstacles: Vec<Obstacle>,
     pub events: Events,
     pub random: Option<RandomSpec>,
+    /// The arm the acceleration-mode controller's inverse dynamics assumes, when it differs from the simulated
+    /// `arm` (model error: a probe condition's heavier or more damped links). None (every scenario file): the
+    /// simulated arm itself. Not a file key.
+    pub control_model: Option<Arm>,
 }
 
 impl Scenario {

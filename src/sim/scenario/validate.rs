@@ -130,6 +130,7 @@ impl Scenario {
             obstacles,
             events,
             random,
+            control_model: None,
         };
         if let Some((i, d)) = sc.start_overlap() {
             return Err(err(

@@ -273,6 +273,9 @@ fn describe(p: &RawProbe, episodes: u64) -> Vec<String> {
     if let Some(d) = &p.link_damping {
         c.push(format!("joint damping {d} N m s/rad"));
     }
+    if p.link_mass_factor.is_some() || p.link_damping.is_some() {
+        c.push("the acceleration controller's inverse dynamics keeps the trained arm (model error)".into());
+    }
     if let Some(n) = p.observation_noise.filter(|n| *n > 0.0) {
         c.push(format!(
             "Gaussian noise, sd {n}, on every observation entry (policies; the controller reads the state)"
@@ -386,7 +389,7 @@ pub(super) fn validate_probes(
                 .and_then(|x| x.as_array())
                 .map_or(0, |a| a.len());
             let t = apply(p, &base).map_err(|(k, m)| at(&k, m))?;
-            let sc = Scenario::from_toml_value(Value::Table(t.clone()), "", o).map_err(|e| {
+            let mut sc = Scenario::from_toml_value(Value::Table(t.clone()), "", o).map_err(|e| {
                 at(
                     blame(p, &e.path, before),
                     format!(
@@ -400,6 +403,12 @@ pub(super) fn validate_probes(
                     blame(p, "arm", before),
                     format!("must keep the arm's joints and control mode (variant `{}`: its policies observe and drive {} joints)", v.name, v.scenario.n()),
                 ));
+            }
+            if p.link_mass_factor.is_some() || p.link_damping.is_some() {
+                // Model error: the acceleration controller's inverse dynamics keeps the arm it was trained
+                // on; with exact inverse dynamics of the changed arm, heavier or more damped links would only
+                // show through the torque limits.
+                sc.control_model = Some(v.scenario.arm.clone());
             }
             if let Some((lo, _)) = &region {
                 if lo.len() != sc.n() {
@@ -415,7 +424,7 @@ pub(super) fn validate_probes(
                 }
             }
             let text = toml::to_string(&t).map_err(|e| at("name", e.to_string()))?;
-            let region_text = format!("{region:?}");
+            let region_text = format!("{region:?}|model error: {}", sc.control_model.is_some());
             let hash = fnv1a_hex(&[
                 b"probe",
                 p.name.as_bytes(),
