@@ -146,21 +146,26 @@ fn the_same_runs_give_the_same_decision() {
     );
 }
 
-/// Fraction of null studies (every variant the same learner) in which the rung keeps every variant.
-fn keep_all_rate(variants: usize, seeds: u64, trials: u64, seed: u64, confidence: f64) -> f64 {
+/// Over null studies (every variant the same learner): the fraction in which the rung keeps every variant,
+/// and the fraction of variants it stops.
+fn null_rates(variants: usize, seeds: u64, trials: u64, seed: u64, confidence: f64) -> (f64, f64) {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let mut all = 0;
+    let (mut all, mut stopped) = (0, 0);
     for t in 0..trials {
         let runs = study(&vec![GOOD; variants], seeds, &mut rng);
-        if decide_at(&runs, t, confidence)
-            .verdicts
-            .iter()
-            .all(|v| v.kept)
-        {
-            all += 1;
-        }
+        let r = decide_at(&runs, t, confidence);
+        let n = r.verdicts.iter().filter(|v| !v.kept).count();
+        all += usize::from(n == 0);
+        stopped += n;
     }
-    all as f64 / trials as f64
+    (
+        all as f64 / trials as f64,
+        stopped as f64 / (trials as usize * variants) as f64,
+    )
+}
+
+fn keep_all_rate(variants: usize, seeds: u64, trials: u64, seed: u64, confidence: f64) -> f64 {
+    null_rates(variants, seeds, trials, seed, confidence).0
 }
 
 #[test]

@@ -89,6 +89,19 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
         "environment steps: {} per run, {} in total; {} evaluations of {} episodes per run",
         exp.study.budget, total, evals, exp.study.eval_episodes
     );
+    if exp.racing.is_some() {
+        let learned_variants = exp
+            .variants
+            .iter()
+            .filter(|v| v.kind == VariantKind::Learned)
+            .count() as u64;
+        let _ = writeln!(
+            s,
+            "racing: the total counts every seed racing could give; without racing the study trains {} steps, \
+             and racing never plans more than that",
+            learned_variants * exp.seeds() * exp.study.budget as u64
+        );
+    }
     let _ = writeln!(
         s,
         "note: studies draw a random collision-free start and a reachable goal for every episode; the scenario's \

@@ -356,12 +356,30 @@ pub fn cli_slurm(
         "termwise: wrote Slurm scripts for {} runs ({} already finished):",
         f.runs, f.finished
     );
-    let _ = writeln!(s, "  {}   job array, one task per run", f.cells.display());
-    for p in &f.stages {
-        let _ = writeln!(s, "  {}   racing: after the stage before it", p.display());
+    if f.stages.is_empty() {
+        let _ = writeln!(s, "  {}   job array, one task per run", f.cells.display());
+        let _ = writeln!(s, "  {}   report job, after the array", f.report.display());
+        let _ = writeln!(s, "  {}   submits both", f.submit.display());
+    } else {
+        let _ = writeln!(
+            s,
+            "  {}   racing stage 0: job array, one task per run",
+            f.cells.display()
+        );
+        for p in &f.stages {
+            let _ = writeln!(s, "  {}   racing: after the job before it", p.display());
+        }
+        let _ = writeln!(
+            s,
+            "  {}   report job, after the last stage",
+            f.report.display()
+        );
+        let _ = writeln!(
+            s,
+            "  {}   submits them in order, each depending on the one before",
+            f.submit.display()
+        );
     }
-    let _ = writeln!(s, "  {}   report job, after the array", f.report.display());
-    let _ = writeln!(s, "  {}   submits both", f.submit.display());
     let _ = writeln!(s, "submit with:  bash {}", f.submit.display());
     let _ = writeln!(
         s,

@@ -196,3 +196,34 @@ done
 [ "$n" -eq 8 ] || { say "FAILED: expected 8 csv files (4 runs x progress/terms), found $n"; exit 1; }
 [ "$fail" -eq 0 ] || { say "FAILED: Slurm and local results differ"; exit 1; }
 say "PASSED: $n evaluations.csv/term_contributions.csv files byte-identical between Slurm and local runs; report.html present"
+
+# --- a raced study: a job array per stage, the rung decision between them, the report after the last ---------
+sed -e 's/^name = "slurm-check"/name = "slurm-raced"/' -e 's/^seeds = 2/seeds = 5/' \
+  -e 's/^reference = "goal-time-acc"/reference = "goal-time-acc"\n[study.racing]\nrungs = [0.8]\nmax_seeds = 5/' \
+  tiny.toml > raced.toml
+"$TERMWISE_BIN" slurm raced.toml --out slurm-raced --time 00:10:00 --mem 500M --max-parallel 2
+grep -q -- '--array=0-7%2' slurm-raced/slurm/cells-stage-0.sbatch || { say "FAILED: unexpected stage-0 --array line"; exit 1; }
+grep -q -- '--array=8-9%2' slurm-raced/slurm/cells-stage-1.sbatch || { say "FAILED: unexpected stage-1 --array line"; exit 1; }
+bash slurm-raced/slurm/submit.sh
+ids=$(awk '{print $2}' slurm-raced/slurm/job-ids | paste -sd, -)
+say "waiting up to ${timeout_s} s for the raced study's jobs $ids"
+start=$(date +%s)
+while [ -n "$(squeue -h -j "$ids" 2>/dev/null)" ]; do
+  if [ $(( $(date +%s) - start )) -gt "$timeout_s" ]; then
+    say "FAILED: raced jobs still queued after ${timeout_s} s"; squeue; exit 1
+  fi
+  sleep 3
+done
+"$TERMWISE_BIN" status slurm-raced | tee status-raced.txt
+grep -q ' 0 missing' status-raced.txt || { say "FAILED: the raced study has missing runs"; exit 1; }
+[ -s slurm-raced/report.html ] && [ -s slurm-raced/racing.json ] || { say "FAILED: no report.html or racing.json"; exit 1; }
+"$TERMWISE_BIN" run raced.toml --out local-raced --jobs 2 --no-report
+cmp -s local-raced/racing.json slurm-raced/racing.json || { say "FAILED: racing decisions differ"; exit 1; }
+fail=0
+n=0
+for f in $(cd local-raced && find . -name evaluations.csv | sort); do
+  n=$((n + 1))
+  cmp -s "local-raced/$f" "slurm-raced/$f" || { say "DIFFERS: $f"; fail=1; }
+done
+[ "$n" -ge 8 ] && [ "$fail" -eq 0 ] || { say "FAILED: raced Slurm and local results differ ($n files)"; exit 1; }
+say "PASSED: raced study: racing.json and $n evaluations.csv files byte-identical between Slurm (stage arrays + decision job) and local runs"

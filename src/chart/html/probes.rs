@@ -24,9 +24,10 @@ fn cell(c: &Option<ProbeCell>, training: bool) -> String {
     match c {
         None => "<td class=num><span class=na>no data</span></td>".into(),
         Some(c) if training => format!(
-            "<td class=num>{}<br><span class=ci>{} runs</span></td>",
+            "<td class=num>{}<br><span class=ci>{} run{}</span></td>",
             est_num(&c.success),
-            c.runs
+            c.runs,
+            if c.runs == 1 { "" } else { "s" }
         ),
         Some(c) => format!(
             "<td class=num>{}<br><span class=ci>change</span> {}</td>",

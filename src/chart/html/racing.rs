@@ -3,6 +3,7 @@
 
 use super::esc;
 use crate::analysis::{StudySummary, VariantSummary};
+use crate::chart::style::fmt_steps;
 use crate::results::{Interval, RungEntry};
 use std::fmt::Write;
 
@@ -20,7 +21,9 @@ fn interval(i: &Option<Interval>, signed: bool) -> String {
     }
 }
 
-/// Why a rung stopped a variant, in words.
+/// Why a rung stopped a variant, in words: its own interval against the leader of its rank group, or, when
+/// that leader is itself separated from the leading group and the variant ranks below it without being told
+/// apart from it, the group it fell into.
 fn why(e: &RungEntry, level: f64) -> String {
     let mut reasons = Vec::new();
     if let Some(d) = e.success_diff.filter(|d| d.hi < 0.0) {
@@ -37,10 +40,18 @@ fn why(e: &RungEntry, level: f64) -> String {
             esc(&e.leader)
         ));
     }
+    if reasons.is_empty() {
+        return format!(
+            "rank group {}: it ranks below <b>{}</b>, which the data separate from the leading group (see its row), and cannot be told apart from it",
+            e.group + 1,
+            esc(&e.leader)
+        );
+    }
     format!(
-        "{} (interval at {:.1}% lies entirely on the worse side)",
+        "{} (interval at {:.1}% lies entirely on the worse side; rank group {})",
         reasons.join(" and "),
-        level * 100.0
+        level * 100.0,
+        e.group + 1
     )
 }
 
@@ -60,17 +71,24 @@ pub fn racing_section(h: &mut String, s: &StudySummary, swatch: fn(&VariantSumma
         plan.confidence * 100.0,
         plan.max_seeds
     );
+    let part = |x: u64| {
+        format!(
+            "{} ({:.1}%)",
+            fmt_steps(x as f64),
+            100.0 * x as f64 / r.unraced_steps.max(1) as f64
+        )
+    };
     let _ = write!(
         h,
-        "{} of {} rungs decided. The study plans {} environment steps against {} without racing ({:.0}%): {} freed by stopped variants, {} of them given to the variants still racing as further seeds, {} saved.</p>",
+        "{} of {} rungs decided. The study plans {} environment steps against {} without racing ({:.1}%): {} freed by stopped variants, {} of them given to the variants still racing as further seeds, {} saved.</p>",
         r.rungs.len(),
         plan.rungs.len(),
-        r.planned_steps,
-        r.unraced_steps,
+        fmt_steps(r.planned_steps as f64),
+        fmt_steps(r.unraced_steps as f64),
         spent * 100.0,
-        r.freed_steps,
-        r.reinvested_steps,
-        r.unraced_steps.saturating_sub(r.planned_steps)
+        part(r.freed_steps),
+        part(r.reinvested_steps),
+        part(r.unraced_steps.saturating_sub(r.planned_steps))
     );
     h.push_str("<table id=racing-table><tr><th>variant</th><th>where it stopped</th><th>seeds</th><th>why</th></tr>");
     for rv in &r.variants {

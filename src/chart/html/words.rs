@@ -19,6 +19,9 @@ pub fn plan_phrase(s: &StudySummary) -> String {
         s.study.seeds.len(),
         plural(s.study.seeds.len())
     );
+    if s.racing.is_some() {
+        let _ = write!(out, " raced ({} seeds each, see Racing)", seeds_words(s).0);
+    }
     if baselines > 0 {
         let _ = write!(
             out,
@@ -28,6 +31,30 @@ pub fn plan_phrase(s: &StudySummary) -> String {
         );
     }
     out
+}
+
+/// Seeds per learned variant in words: the study's seed count, or for a raced study whose variants ran
+/// different numbers of seeds the range ("4 to 9"); with the count that decides the plural.
+pub(super) fn seeds_words(s: &StudySummary) -> (String, usize) {
+    let n = s.study.seeds.len();
+    if s.racing.is_none() {
+        return (n.to_string(), n);
+    }
+    let counts: Vec<usize> = s
+        .variants
+        .iter()
+        .filter(|v| v.info.kind == VariantKind::Learned)
+        .map(|v| v.runs.len())
+        .collect();
+    let (lo, hi) = (
+        counts.iter().copied().min().unwrap_or(n),
+        counts.iter().copied().max().unwrap_or(n),
+    );
+    if lo == hi {
+        (lo.to_string(), lo)
+    } else {
+        (format!("{lo} to {hi}"), hi)
+    }
 }
 
 pub(super) fn plural(n: usize) -> &'static str {
@@ -87,7 +114,7 @@ pub fn headline(s: &StudySummary) -> String {
         .iter()
         .map(|&i| format!("<b>{}</b>", esc(&s.variants[i].info.name)))
         .collect();
-    let seeds = s.study.seeds.len();
+    let (seeds_text, seeds) = seeds_words(s);
     let nobody_reached = s
         .ranking()
         .iter()
@@ -103,7 +130,7 @@ pub fn headline(s: &StudySummary) -> String {
         if top.len() > 1 {
             let _ = write!(
                 out,
-                " ({}); they cannot be told apart with {seeds} seed{}.",
+                " ({}); they cannot be told apart with {seeds_text} seed{}.",
                 names[0],
                 plural(seeds)
             );
@@ -121,7 +148,7 @@ pub fn headline(s: &StudySummary) -> String {
         )
     } else {
         format!(
-            "{} reach {thr:.0}% clean success fastest and cannot be told apart with {seeds} seed{}: {} needs {} environment steps (IQM across seeds), final clean success {}.",
+            "{} reach {thr:.0}% clean success fastest and cannot be told apart with {seeds_text} seed{}: {} needs {} environment steps (IQM across seeds), final clean success {}.",
             join_names(&names),
             plural(seeds),
             names[0],

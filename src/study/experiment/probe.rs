@@ -274,7 +274,10 @@ fn describe(p: &RawProbe, episodes: u64) -> Vec<String> {
         c.push(format!("joint damping {d} N m s/rad"));
     }
     if p.link_mass_factor.is_some() || p.link_damping.is_some() {
-        c.push("the acceleration controller's inverse dynamics keeps the trained arm (model error)".into());
+        c.push(
+            "the acceleration controller's inverse dynamics keeps the trained arm (model error)"
+                .into(),
+        );
     }
     if let Some(n) = p.observation_noise.filter(|n| *n > 0.0) {
         c.push(format!(
@@ -389,15 +392,16 @@ pub(super) fn validate_probes(
                 .and_then(|x| x.as_array())
                 .map_or(0, |a| a.len());
             let t = apply(p, &base).map_err(|(k, m)| at(&k, m))?;
-            let mut sc = Scenario::from_toml_value(Value::Table(t.clone()), "", o).map_err(|e| {
-                at(
-                    blame(p, &e.path, before),
-                    format!(
-                        "makes an invalid scenario for variant `{}`: {}: {}",
-                        v.name, e.path, e.message
-                    ),
-                )
-            })?;
+            let mut sc =
+                Scenario::from_toml_value(Value::Table(t.clone()), "", o).map_err(|e| {
+                    at(
+                        blame(p, &e.path, before),
+                        format!(
+                            "makes an invalid scenario for variant `{}`: {}: {}",
+                            v.name, e.path, e.message
+                        ),
+                    )
+                })?;
             if sc.n() != v.scenario.n() || sc.control != v.scenario.control {
                 return Err(at(
                     blame(p, "arm", before),
