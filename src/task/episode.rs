@@ -2,7 +2,9 @@
 //! check of the start/goal draw), the reward composer, the observation the policy sees, and the metrics.
 
 use super::metrics::{Accum, EpisodeMetrics};
-use super::observation::ObservationSpec;
+use super::observation::{
+    arm_obs_dim, clearance_obs_dim, observe_arm, observe_clearance, ObservationSpec,
+};
 use crate::curriculum::EpisodeDraw;
 use crate::plan::connectivity::ConnectivityGrid;
 use crate::plan::{plan_path, PlanSpec, ReferencePath};
@@ -42,7 +44,7 @@ pub struct Episode {
     pub path: ReferencePath,
     prev: StepReport,
     acc: Accum,
-    /// What the policy observes beyond the simulator's physical observation.
+    /// What the policy observes beyond the arm's part of the observation.
     obs: ObservationSpec,
     plan_rng: ChaCha8Rng,
     /// Joint-space connectivity of the obstacle layouts episodes began with (two-link arms; curricula may
@@ -80,12 +82,12 @@ impl Episode {
         }
     }
 
-    /// Observation length: the simulator's, plus 2 per waypoint when the policy is path-conditioned, plus n per
+    /// Observation length: the arm's part (`observation::arm_obs_dim`), plus 2 per waypoint when the policy is path-conditioned, plus n per
     /// waypoint with joint-space waypoints, plus 2n with the clearance entries.
     pub fn obs_dim(&self) -> usize {
         let n = self.sim.n();
         let o = &self.obs;
-        self.sim.obs_dim()
+        arm_obs_dim(&self.sim)
             + if o.waypoints {
                 2 * self.plan.waypoints
             } else {
@@ -97,7 +99,7 @@ impl Episode {
                 0
             }
             + if o.clearance {
-                self.sim.clearance_obs_dim()
+                clearance_obs_dim(&self.sim)
             } else {
                 0
             }
@@ -252,11 +254,11 @@ impl Episode {
         self.acc.metrics(self.sim.n(), self.composer.episode_sums())
     }
 
-    /// Write the observation: the simulator's, then the next K waypoints relative to the effector (scaled by reach).
+    /// Write the observation: the arm's part (`observation::observe_arm`), then the next K waypoints relative to the effector (scaled by reach).
     /// Then, when enabled, the same waypoints' joint offsets and the clearance entries.
     pub fn observe(&self, out: &mut [f32]) {
-        let mut d = self.sim.obs_dim();
-        self.sim.observe(&mut out[..d]);
+        let mut d = arm_obs_dim(&self.sim);
+        observe_arm(&self.sim, &mut out[..d]);
         let o = &self.obs;
         if o.waypoints || o.joint_waypoints {
             let ee = self.prev.ee;
@@ -284,8 +286,8 @@ impl Episode {
             }
         }
         if o.clearance {
-            let c = self.sim.clearance_obs_dim();
-            self.sim.observe_clearance(&mut out[d..d + c]);
+            let c = clearance_obs_dim(&self.sim);
+            observe_clearance(&self.sim, &mut out[d..d + c]);
         }
     }
 }

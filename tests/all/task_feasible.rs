@@ -8,6 +8,7 @@ use termwise::curriculum::full_task_draw;
 use termwise::plan::connectivity::ConnectivityGrid;
 use termwise::plan::plan_path;
 use termwise::study::experiment;
+use termwise::task::observation::arm_obs_dim;
 use termwise::task::{begin_eval, feasibility_spec, Episode};
 
 fn quickstart_episode() -> (experiment::Experiment, Episode) {
@@ -81,14 +82,14 @@ fn joint_waypoint_entries_are_the_next_waypoints_joint_offsets() {
     let mut ep = v.episode();
     let k = v.plan.waypoints;
     let n = v.scenario.n();
-    assert_eq!(ep.obs_dim(), ep.sim.obs_dim() + 2 * k + n * k);
+    assert_eq!(ep.obs_dim(), arm_obs_dim(&ep.sim) + 2 * k + n * k);
     for j in 0..5 {
         begin_eval(&mut ep, exp.study.eval_seed, j);
         let mut obs = vec![0.0f32; ep.obs_dim()];
         ep.observe(&mut obs);
         let q = ep.sim.state().q;
         assert_eq!(ep.path.joints.len(), k);
-        let base = ep.sim.obs_dim() + 2 * k;
+        let base = arm_obs_dim(&ep.sim) + 2 * k;
         for w in 0..k {
             let target = ep.path.joints[(w + 1).min(k - 1)];
             for i in 0..n {
