@@ -6,6 +6,7 @@
 pub mod bootstrap;
 pub mod compare;
 pub mod load;
+pub mod metric;
 pub mod run_metrics;
 pub mod stats;
 pub mod summary;
@@ -15,10 +16,11 @@ pub use crate::results::{EvalRow, RunStatus, StudyRecord, VariantKind, VariantRe
 pub use bootstrap::{BootstrapSpec, Estimate};
 pub use compare::{MannWhitney, PValueMethod};
 pub use load::{load_study, RunResults, StudyResults, VariantRuns};
+pub use metric::{Metric, MetricId, METRICS};
 pub use run_metrics::{RunMetrics, Threshold};
 pub use summary::{
-    summarize, verdict, Aggregate, AnalysisOptions, Comparison, CrashFlag, Curve, CurveMetric,
-    Effects, EpisodeLevel, GamingFlag, PointStat, SeedsNeeded, StatusCounts, StudySummary,
+    summarize, verdict, Aggregate, AnalysisOptions, Comparison, CrashFlag, Curve, Effects,
+    EpisodeLevel, GamingFlag, PointStat, SeedsNeeded, StatusCounts, StudySummary,
     ThresholdAggregate, VariantSummary, Verdict,
 };
 

@@ -119,7 +119,8 @@ fn loading_counts_every_run_status_and_keeps_missing_runs() {
     assert_eq!(flagged, ["heavy-shaping"]);
     // Every interval contains its point estimate.
     for v in &s.variants {
-        for a in [&v.final_success, &v.auc, &v.rms_joint_acc] {
+        let finals = termwise::analysis::metric::with_final().map(|(id, _, _)| v.figure(id));
+        for a in std::iter::once(v.auc).chain(finals) {
             if a.iqm.lo.is_finite() {
                 assert!(
                     a.iqm.lo <= a.iqm.point && a.iqm.point <= a.iqm.hi,
