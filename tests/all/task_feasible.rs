@@ -9,7 +9,7 @@ use termwise::plan::connectivity::ConnectivityGrid;
 use termwise::plan::plan_path;
 use termwise::study::experiment;
 use termwise::task::observation::arm_obs_dim;
-use termwise::task::{begin_eval, feasibility_spec, Episode};
+use termwise::task::{begin_eval, feasibility_spec, Episode, START_CLEARANCE_FACTOR};
 
 fn quickstart_episode() -> (experiment::Experiment, Episode) {
     let exp = experiment::load(Path::new("experiments/quickstart.toml")).unwrap();
@@ -29,6 +29,12 @@ fn evaluation_episodes_all_have_a_collision_free_path_and_are_the_same_every_tim
         assert!(
             !ep.path.fallback,
             "episode {j} has no collision-free reference path"
+        );
+        // Starts keep twice the reference path's margin, so the planner never lowers it.
+        let clear = ep.sim.clearances(&ep.sim.state().q[..2]).0;
+        assert!(
+            clear >= START_CLEARANCE_FACTOR * exp.variants[0].plan.clearance_margin,
+            "episode {j} starts {clear} m from contact"
         );
         redrawn += (r.redraws > 0) as usize;
         firsts.push((ep.sim.state().q, ep.sim.goal()));
