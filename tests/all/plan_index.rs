@@ -52,8 +52,8 @@ fn check(bounds: &[(f64, f64)], width: f64, count: usize, seed: u64) {
         );
         let r = rng.gen_range(0.0..width);
         idx.candidates(&query, r, &mut cand);
-        for i in 0..nodes.len() {
-            if sq_dist(&nodes[i], &query, n).sqrt() <= r {
+        for (i, node) in nodes.iter().enumerate() {
+            if sq_dist(node, &query, n).sqrt() <= r {
                 assert!(cand.contains(&i), "node {i} within {r} missing, {n}-d");
             }
         }
