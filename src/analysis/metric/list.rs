@@ -133,7 +133,7 @@ pub const METRICS: &[Metric] = &[
         curve: Some(CurveSpec {
             stream: 2,
             chart: CurveChart::Panel(Panel {
-                title: "Time to goal, clean successes (lower is faster)",
+                title: "Time to goal, episodes that reached it (lower is faster)",
                 y_label: "time to goal (s)",
                 range: None,
             }),
