@@ -7,6 +7,7 @@ use criterion::{criterion_group, criterion_main, Criterion};
 use std::hint::black_box;
 use std::sync::Arc;
 use termwise::sim::{ArmEnv, ContactMode, Scenario};
+use termwise::task::observation::{arm_obs_dim, observe_arm};
 
 fn scenario(control: &str, contact: ContactMode) -> Arc<Scenario> {
     let path = concat!(
@@ -35,7 +36,7 @@ fn bench_step(c: &mut Criterion) {
         let start = *env.state();
         let goal = env.goal();
         let mut k = 0u64;
-        let mut obs = vec![0f32; env.obs_dim()];
+        let mut obs = vec![0f32; arm_obs_dim(&env)];
         c.bench_function(&format!("control_step_{mode}_rk4_10sub_{tag}"), |b| {
             b.iter(|| {
                 k += 1;
@@ -43,7 +44,7 @@ fn bench_step(c: &mut Criterion) {
                 let s = ((k % 200) as f64 * 0.0314).sin();
                 let u = [2.0 * s, -1.5 * s];
                 let r = env.step(black_box(&u));
-                env.observe(&mut obs);
+                observe_arm(&env, &mut obs);
                 if r.timed_out {
                     env.reset(start, goal, k);
                 }

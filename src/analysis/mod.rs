@@ -7,6 +7,7 @@ pub mod bootstrap;
 pub mod compare;
 pub mod groups;
 pub mod load;
+pub mod metric;
 pub mod probes;
 pub mod race;
 pub mod run_metrics;
@@ -18,10 +19,11 @@ pub use crate::results::{EvalRow, RunStatus, StudyRecord, VariantKind, VariantRe
 pub use bootstrap::{BootstrapSpec, Estimate};
 pub use compare::{MannWhitney, PValueMethod};
 pub use load::{load_study, RunResults, StudyResults, VariantRuns};
+pub use metric::{Metric, MetricId, METRICS};
 pub use run_metrics::{RunMetrics, Threshold};
 pub use summary::{
-    summarize, verdict, Aggregate, AnalysisOptions, Comparison, CrashFlag, Curve, CurveMetric,
-    Effects, EpisodeLevel, GamingFlag, PointStat, SeedsNeeded, StatusCounts, StudySummary,
+    summarize, verdict, Aggregate, AnalysisOptions, Comparison, CrashFlag, Curve, Effects,
+    EpisodeLevel, GamingFlag, PointStat, SeedsNeeded, StatusCounts, StudySummary,
     ThresholdAggregate, VariantSummary, Verdict,
 };
 

@@ -8,6 +8,7 @@
 use super::bootstrap::Estimate;
 use super::groups::{rank_groups, rank_order, Ranked};
 use super::load::RunResults;
+use super::metric::SUCCESS;
 use super::run_metrics::{run_metrics, RunContext};
 use super::stats::{finite, iqm};
 
@@ -70,7 +71,7 @@ pub fn decide_rung(
                 .iter()
                 .filter_map(|m| m.steps_to_threshold.rank_value())
                 .collect();
-            let success = finite(m.iter().filter_map(|m| m.final_success));
+            let success = finite(m.iter().filter_map(|m| m.figure(SUCCESS)));
             (steps, success)
         })
         .collect();

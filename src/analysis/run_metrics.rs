@@ -2,6 +2,7 @@
 //! never reached), and final performance and motion quality over the last evaluations.
 
 use super::load::RunResults;
+use super::metric::{with_final, MetricId, METRICS};
 use super::stats::{finite, mean};
 use crate::results::{EvalRow, RunStatus, VariantKind};
 
@@ -45,30 +46,16 @@ pub struct RunMetrics {
     pub auc: Option<f64>,
     /// Steps to the success threshold.
     pub steps_to_threshold: Threshold,
-    /// Mean clean success rate (goal reached, no contact) over the final window.
-    pub final_success: Option<f64>,
-    /// Mean reached rate (goal reached, contact allowed) over the final window.
-    pub final_reached: Option<f64>,
-    /// Mean collision rate (episodes with any contact) over the final window.
-    pub final_collision: Option<f64>,
-    /// Mean episode length over the final window, control steps.
-    pub episode_steps: Option<f64>,
-    /// Mean return over the final window.
-    pub final_return: Option<f64>,
-    /// Mean time to goal over the final window, s.
-    pub time_to_goal: Option<f64>,
-    /// Mean RMS joint acceleration over the final window, rad/s^2.
-    pub rms_joint_acc: Option<f64>,
-    /// Mean peak joint acceleration over the final window, rad/s^2.
-    pub peak_joint_acc: Option<f64>,
-    /// Mean RMS jerk over the final window, rad/s^3.
-    pub rms_jerk: Option<f64>,
-    /// Mean effector path length over the final window, m.
-    pub path_length: Option<f64>,
-    /// Mean minimum clearance over the final window, m.
-    pub min_clearance: Option<f64>,
-    /// Mean replans per episode over the final window.
-    pub replans: Option<f64>,
+    /// Final figure of each metric in `METRICS` (the mean over the final window; None where undefined or
+    /// for a metric without a final figure).
+    pub finals: Vec<Option<f64>>,
+}
+
+impl RunMetrics {
+    /// The final figure of metric `m` (None where undefined).
+    pub fn figure(&self, m: MetricId) -> Option<f64> {
+        self.finals.get(m.0).copied().flatten()
+    }
 }
 
 /// What the study fixes for every run.
@@ -89,8 +76,8 @@ pub struct RunContext {
 /// Rules, so that no run is silently dropped or flattered:
 /// - done: every figure from its rows.
 /// - diverged: the policy after divergence is unusable, so its success counts as 0 from the last
-///   evaluation to the budget (AUC), final success is 0, and a threshold not reached before
-///   divergence is censored. Motion-quality figures are undefined.
+///   evaluation to the budget (AUC), its final figures are `Final::diverged` (0 for the rates of
+///   reaching the goal, else undefined), and a threshold not reached before divergence is censored.
 /// - interrupted / running / missing: unfinished, so AUC and final figures are undefined; a threshold
 ///   already reached counts, otherwise it is pending.
 /// - baseline: one evaluation; final figures from it, AUC and threshold not applicable.
@@ -103,18 +90,7 @@ pub fn run_metrics(run: &RunResults, ctx: &RunContext) -> RunMetrics {
         last_step: rows.last().map_or(0, |r| r.env_steps),
         auc: None,
         steps_to_threshold: Threshold::NotApplicable,
-        final_success: None,
-        final_reached: None,
-        final_collision: None,
-        episode_steps: None,
-        final_return: None,
-        time_to_goal: None,
-        rms_joint_acc: None,
-        peak_joint_acc: None,
-        rms_jerk: None,
-        path_length: None,
-        min_clearance: None,
-        replans: None,
+        finals: vec![None; METRICS.len()],
     };
     if ctx.kind == VariantKind::Baseline {
         if run.status == RunStatus::Done && !rows.is_empty() {
@@ -143,8 +119,9 @@ pub fn run_metrics(run: &RunResults, ctx: &RunContext) -> RunMetrics {
             } else {
                 Some(success_auc(rows, ctx.budget_steps, true))
             };
-            m.final_success = Some(0.0);
-            m.final_reached = Some(0.0);
+            for (id, _, f) in with_final() {
+                m.finals[id.0] = f.diverged;
+            }
         }
         _ => {}
     }
@@ -153,22 +130,10 @@ pub fn run_metrics(run: &RunResults, ctx: &RunContext) -> RunMetrics {
 
 fn fill_final(m: &mut RunMetrics, rows: &[EvalRow], window: usize) {
     let tail = &rows[rows.len().saturating_sub(window)..];
-    let avg = |f: fn(&EvalRow) -> f64| {
-        let v = finite(tail.iter().map(f));
-        (!v.is_empty()).then(|| mean(&v))
-    };
-    m.final_success = avg(|r| r.success_rate);
-    m.final_reached = avg(|r| r.reached_rate);
-    m.final_collision = avg(|r| r.collision_rate);
-    m.episode_steps = avg(|r| r.episode_steps);
-    m.final_return = avg(|r| r.mean_return);
-    m.time_to_goal = avg(|r| r.time_to_goal);
-    m.rms_joint_acc = avg(|r| r.rms_joint_acc);
-    m.peak_joint_acc = avg(|r| r.peak_joint_acc);
-    m.rms_jerk = avg(|r| r.rms_jerk);
-    m.path_length = avg(|r| r.path_length);
-    m.min_clearance = avg(|r| r.min_clearance);
-    m.replans = avg(|r| r.replans);
+    for (id, metric, _) in with_final() {
+        let v = finite(tail.iter().map(metric.value));
+        m.finals[id.0] = (!v.is_empty()).then(|| mean(&v));
+    }
 }
 
 /// Trapezoid area under success_rate(env_steps) from the first evaluation to the budget, divided by
@@ -201,6 +166,7 @@ pub fn success_auc(rows: &[EvalRow], budget: u64, diverged: bool) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::analysis::metric::{COLLISION, REACHED, SUCCESS};
     use approx::assert_relative_eq;
 
     fn row(step: u64, success: f64) -> EvalRow {
@@ -208,8 +174,6 @@ mod tests {
             env_steps: step,
             success_rate: success,
             reached_rate: success,
-            collision_rate: 0.0,
-            mean_return: 0.0,
             time_to_goal: f64::NAN,
             episode_steps: 100.0,
             rms_joint_acc: 1.0,
@@ -217,10 +181,7 @@ mod tests {
             rms_jerk: 3.0,
             path_length: 0.5,
             min_clearance: 0.1,
-            path_deviation: 0.0,
-            replans: 0.0,
-            planner_fallbacks: 0.0,
-            curriculum_level: 0.0,
+            ..EvalRow::default()
         }
     }
 
@@ -261,19 +222,24 @@ mod tests {
         let never = vec![row(100, 0.1), row(200, 0.5), row(300, 0.79), row(400, 0.7)];
         let m = run_metrics(&run(RunStatus::Done, never.clone()), &CTX);
         assert_eq!(m.steps_to_threshold, Threshold::Censored(400));
-        assert_relative_eq!(m.final_success.unwrap(), (0.79 + 0.7) / 2.0);
+        assert_relative_eq!(m.figure(SUCCESS).unwrap(), (0.79 + 0.7) / 2.0);
         let m = run_metrics(&run(RunStatus::Interrupted, never[..2].to_vec()), &CTX);
         assert_eq!(m.steps_to_threshold, Threshold::Pending);
-        assert_eq!(m.final_success, None);
+        assert_eq!(m.figure(SUCCESS), None);
         assert_eq!(m.auc, None);
         let reached = vec![row(100, 0.2), row(200, 0.85), row(300, 0.9)];
         let m = run_metrics(&run(RunStatus::Interrupted, reached), &CTX);
         assert_eq!(m.steps_to_threshold, Threshold::Reached(200));
         let m = run_metrics(&run(RunStatus::Diverged, never[..2].to_vec()), &CTX);
         assert_eq!(m.steps_to_threshold, Threshold::Censored(400));
-        assert_eq!(m.final_success, Some(0.0));
+        assert_eq!(m.figure(SUCCESS), Some(0.0));
+        assert_eq!(m.figure(REACHED), Some(0.0));
+        assert_eq!(m.figure(COLLISION), None);
         // time_to_goal is NaN in every row (no success): undefined, not NaN-averaged.
         let m = run_metrics(&run(RunStatus::Done, never), &CTX);
-        assert_eq!(m.time_to_goal, None);
+        assert_eq!(
+            m.figure(crate::analysis::metric::Metric::id("time_to_goal")),
+            None
+        );
     }
 }

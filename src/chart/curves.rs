@@ -5,56 +5,23 @@
 use super::render::Chart;
 use super::style::*;
 use super::ChartError;
-use crate::analysis::{CurveMetric, Estimate, StudySummary, VariantKind, VariantSummary};
+use crate::analysis::metric::{with_curve, CurveChart, MetricId, OwnChart, Panel, Shown, SUCCESS};
+use crate::analysis::{Estimate, StudySummary, VariantKind, VariantSummary};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
-/// One panel: metric, title, y-axis label, fixed y range (None = from data).
-struct Panel {
-    metric: CurveMetric,
-    title: &'static str,
-    y_label: &'static str,
-    fixed: Option<(f64, f64)>,
-}
+/// Panels per row of the learning-curves figure.
+const COLS: usize = 3;
 
-const LEARNING_PANELS: [Panel; 6] = [
-    Panel {
-        metric: CurveMetric::Success,
-        title: "Clean success: reached, no contact (higher is better)",
-        y_label: "clean success rate (fraction of eval episodes)",
-        fixed: Some((0.0, 1.0)),
-    },
-    Panel {
-        metric: CurveMetric::Reached,
-        title: "Reached the goal, contact allowed",
-        y_label: "reached rate (fraction of eval episodes)",
-        fixed: Some((0.0, 1.0)),
-    },
-    Panel {
-        metric: CurveMetric::Collision,
-        title: "Collision rate (lower is better)",
-        y_label: "episodes with contact (fraction)",
-        fixed: Some((0.0, 1.0)),
-    },
-    Panel {
-        metric: CurveMetric::Return,
-        title: "Mean return",
-        y_label: "return per episode (reward units)",
-        fixed: None,
-    },
-    Panel {
-        metric: CurveMetric::TimeToGoal,
-        title: "Time to goal, clean successes (lower is faster)",
-        y_label: "time to goal (s)",
-        fixed: None,
-    },
-    Panel {
-        metric: CurveMetric::RmsJointAcc,
-        title: "RMS joint acceleration (lower is smoother)",
-        y_label: "RMS joint acceleration (rad/s²)",
-        fixed: None,
-    },
-];
+/// The panels of the learning-curves figure: the metrics drawn as `CurveChart::Panel`, in list order.
+fn learning_panels() -> Vec<(MetricId, &'static Panel)> {
+    with_curve()
+        .filter_map(|(id, _, c)| match &c.chart {
+            CurveChart::Panel(p) => Some((id, p)),
+            _ => None,
+        })
+        .collect()
+}
 
 /// Side-by-side learning curves for every variant.
 pub struct LearningCurves<'a> {
@@ -64,16 +31,49 @@ pub struct LearningCurves<'a> {
     pub per_seed: bool,
 }
 
-/// Curriculum difficulty over training for variants that have one.
-pub struct CurriculumChart<'a> {
+/// One metric's learning curve in a chart of its own (`CurveChart::Own`).
+pub struct MetricChart<'a> {
     /// The study.
     pub summary: &'a StudySummary,
+    /// The metric.
+    pub metric: MetricId,
+    /// Its chart.
+    pub spec: &'static OwnChart,
     /// Indices of the variants to draw.
     pub variants: Vec<usize>,
+    /// Draw faint per-seed lines.
+    pub per_seed: bool,
 }
 
-/// Variants whose curriculum is named (not none/uniform) or whose level changes over training.
-pub fn curriculum_variants(s: &StudySummary) -> Vec<usize> {
+/// The charts of the metrics drawn on their own, in list order (a chart no variant qualifies for is left out).
+pub fn metric_charts(s: &StudySummary, per_seed: bool) -> Vec<MetricChart<'_>> {
+    with_curve()
+        .filter_map(|(id, _, c)| match &c.chart {
+            CurveChart::Own(spec) => Some((id, spec)),
+            _ => None,
+        })
+        .map(|(metric, spec)| MetricChart {
+            summary: s,
+            metric,
+            spec,
+            variants: shown(s, metric, spec.variants),
+            per_seed,
+        })
+        .filter(|c| !c.variants.is_empty())
+        .collect()
+}
+
+/// The variants a metric's own chart draws.
+fn shown(s: &StudySummary, metric: MetricId, which: Shown) -> Vec<usize> {
+    match which {
+        Shown::All => (0..s.variants.len()).collect(),
+        Shown::Curriculum => curriculum_variants(s, metric),
+    }
+}
+
+/// Learned variants whose curriculum is named (not none/uniform) or whose curve of `metric` (the curriculum
+/// level) changes over training.
+fn curriculum_variants(s: &StudySummary, metric: MetricId) -> Vec<usize> {
     s.variants
         .iter()
         .filter(|v| v.info.kind == VariantKind::Learned)
@@ -82,10 +82,11 @@ pub fn curriculum_variants(s: &StudySummary) -> Vec<usize> {
                 v.info.curriculum.as_str(),
                 "" | "none" | "uniform" | "fixed"
             );
-            let pts = &v.curves[&CurveMetric::CurriculumLevel].points;
-            let varies = pts
-                .iter()
-                .any(|p| (p.iqm.point - pts[0].iqm.point).abs() > 1e-9);
+            let varies = v.curves.get(&metric).is_some_and(|c| {
+                c.points
+                    .iter()
+                    .any(|p| (p.iqm.point - c.points[0].iqm.point).abs() > 1e-9)
+            });
             named || varies
         })
         .map(|v| v.index)
@@ -120,7 +121,9 @@ impl Chart for LearningCurves<'_> {
         "IQM across seeds per variant with a shaded bootstrap confidence band; faint lines are single seeds; the classical controller is a flat dashed line with a band over its evaluation episodes. Top row, side by side: clean success (goal reached with no contact — read this first: the earlier a curve crosses the dotted threshold, the faster the variant learns), reached rate (contact allowed) and collision rate. A gap between reached and clean success is the share of episodes that got there by touching something. Bottom row: return, time to goal and joint acceleration."
     }
     fn size(&self) -> (u32, u32) {
-        (1800, 1040)
+        // Two rows of three panels; a further row adds its height.
+        let rows = learning_panels().len().div_ceil(COLS).max(2) as u32;
+        (1800, 1040 + 470 * (rows - 2))
     }
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ChartError> {
         let s = self.summary;
@@ -143,46 +146,44 @@ impl Chart for LearningCurves<'_> {
         let _ = top;
         let (legend_area, plots) = rest.split_vertically(lh);
         draw_legend(&legend_area, &legend, name)?;
-        let cells = plots.split_evenly((2, 3));
-        for (cell, panel) in cells.iter().zip(&LEARNING_PANELS) {
-            draw_panel(cell, s, panel, &all, self.per_seed, name)?;
+        let panels = learning_panels();
+        let cells = plots.split_evenly((panels.len().div_ceil(COLS).max(2), COLS));
+        for (cell, (id, panel)) in cells.iter().zip(&panels) {
+            draw_panel(cell, s, *id, panel, &all, self.per_seed, name)?;
         }
         Ok(())
     }
 }
 
-impl Chart for CurriculumChart<'_> {
+impl Chart for MetricChart<'_> {
     fn stem(&self) -> &'static str {
-        "curriculum"
+        self.spec.stem
     }
     fn caption(&self) -> &'static str {
-        "Start-state difficulty over training for variants with a curriculum; a curve that stalls below 1 means the policy never mastered the full task distribution."
+        self.spec.caption
     }
     fn size(&self) -> (u32, u32) {
-        (1100, 620)
+        self.spec.size
     }
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ChartError> {
         let s = self.summary;
         let name = self.stem();
-        let head = draw_title(
-            root,
-            "How hard were the start states as training went on?",
-            "Curriculum difficulty (0 = easiest starts, 1 = full task); IQM across seeds with bootstrap CI band.",
-            name,
-        )?;
+        let head = draw_title(root, self.spec.title, self.spec.subtitle, name)?;
         let legend = variant_legend(s, &self.variants);
         let (w, _) = root.dim_in_pixel();
         let lh = legend_height(root, &legend, w);
         let (_, rest) = root.split_vertically(head);
         let (legend_area, plot) = rest.split_vertically(lh);
         draw_legend(&legend_area, &legend, name)?;
-        let panel = Panel {
-            metric: CurveMetric::CurriculumLevel,
-            title: "Curriculum difficulty",
-            y_label: "difficulty (0-1)",
-            fixed: Some((0.0, 1.0)),
-        };
-        draw_panel(&plot, s, &panel, &self.variants, true, name)
+        draw_panel(
+            &plot,
+            s,
+            self.metric,
+            &self.spec.panel,
+            &self.variants,
+            self.per_seed,
+            name,
+        )
     }
 }
 
@@ -200,15 +201,22 @@ pub(super) fn segments(points: impl Iterator<Item = (f64, f64)>) -> Vec<Vec<(f64
     out
 }
 
-fn y_range(s: &StudySummary, panel: &Panel, which: &[usize], per_seed: bool) -> (f64, f64) {
-    if let Some(r) = panel.fixed {
+fn y_range(
+    s: &StudySummary,
+    metric: MetricId,
+    panel: &Panel,
+    which: &[usize],
+    per_seed: bool,
+) -> (f64, f64) {
+    if let Some(r) = panel.range {
         return r;
     }
+    let value = metric.metric().value;
     let mut lo = f64::INFINITY;
     let mut hi = f64::NEG_INFINITY;
     for &i in which {
         let v = &s.variants[i];
-        for p in &v.curves[&panel.metric].points {
+        for p in v.curves.get(&metric).map_or(&[][..], |c| &c.points) {
             for y in [p.iqm.lo, p.iqm.hi, p.iqm.point] {
                 if y.is_finite() {
                     lo = lo.min(y);
@@ -219,7 +227,7 @@ fn y_range(s: &StudySummary, panel: &Panel, which: &[usize], per_seed: bool) -> 
         if per_seed {
             for c in &v.seed_curves {
                 for r in &c.rows {
-                    let y = panel.metric.of(r);
+                    let y = value(r);
                     if y.is_finite() {
                         lo = lo.min(y);
                         hi = hi.max(y);
@@ -238,13 +246,15 @@ fn y_range(s: &StudySummary, panel: &Panel, which: &[usize], per_seed: bool) -> 
 fn draw_panel<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     s: &StudySummary,
+    metric: MetricId,
     panel: &Panel,
     which: &[usize],
     per_seed: bool,
     name: &'static str,
 ) -> Result<(), ChartError> {
     let x_max = s.study.budget_steps.max(1) as f64;
-    let (y0, y1) = y_range(s, panel, which, per_seed);
+    let (y0, y1) = y_range(s, metric, panel, which, per_seed);
+    let value = metric.metric().value;
     let mut chart = ChartBuilder::on(area)
         .caption(panel.title, text(17, INK))
         .margin(14)
@@ -253,7 +263,7 @@ fn draw_panel<DB: DrawingBackend>(
         .build_cartesian_2d(0.0..x_max, y0..y1)
         .map_err(draw_err(name))?;
     steps_axes(&mut chart, panel.y_label, 13, name)?;
-    if panel.metric == CurveMetric::Success {
+    if metric == SUCCESS {
         let t = s.study.success_threshold;
         chart
             .draw_series(DashedLineSeries::new(
@@ -285,10 +295,7 @@ fn draw_panel<DB: DrawingBackend>(
             }
             let faint = lighten(variant_colour(i), 0.6).stroke_width(1);
             for c in &v.seed_curves {
-                let pts = c
-                    .rows
-                    .iter()
-                    .map(|r| (r.env_steps as f64, panel.metric.of(r)));
+                let pts = c.rows.iter().map(|r| (r.env_steps as f64, value(r)));
                 for seg in segments(pts) {
                     chart
                         .draw_series(LineSeries::new(seg, faint))
@@ -298,26 +305,21 @@ fn draw_panel<DB: DrawingBackend>(
         }
     }
     for &i in which {
-        draw_band(&mut chart, &s.variants[i], panel.metric, x_max, name)?;
+        draw_band(&mut chart, &s.variants[i], metric, x_max, name)?;
     }
     for &i in which {
-        draw_centre(&mut chart, &s.variants[i], panel.metric, x_max, name)?;
+        draw_centre(&mut chart, &s.variants[i], metric, x_max, name)?;
     }
     Ok(())
 }
 
 /// The flat level of a baseline on `metric`: for the rates, the value with its interval over the
 /// evaluation episodes (Wilson); otherwise its single evaluation (no interval).
-fn baseline_level(v: &VariantSummary, metric: CurveMetric) -> Option<Estimate> {
-    if let Some(e) = &v.episode_level {
-        match metric {
-            CurveMetric::Success => return Some(e.success),
-            CurveMetric::Reached => return Some(e.reached),
-            CurveMetric::Collision => return Some(e.collision),
-            _ => {}
-        }
+fn baseline_level(v: &VariantSummary, metric: MetricId) -> Option<Estimate> {
+    if let Some(e) = v.episode_level.as_ref().and_then(|e| e.rate(metric)) {
+        return Some(e);
     }
-    v.curves[&metric].points.first().map(|p| p.iqm)
+    v.curves.get(&metric)?.points.first().map(|p| p.iqm)
 }
 
 type F64Chart<'a, DB> = ChartContext<
@@ -329,11 +331,13 @@ type F64Chart<'a, DB> = ChartContext<
 fn draw_band<DB: DrawingBackend>(
     chart: &mut F64Chart<'_, DB>,
     v: &VariantSummary,
-    metric: CurveMetric,
+    metric: MetricId,
     x_max: f64,
     name: &'static str,
 ) -> Result<(), ChartError> {
-    let c = &v.curves[&metric];
+    let Some(c) = v.curves.get(&metric) else {
+        return Ok(());
+    };
     let fill = variant_colour(v.index).mix(0.16).filled();
     if v.info.kind == VariantKind::Baseline {
         if let Some(p) = baseline_level(v, metric).filter(|p| p.lo.is_finite()) {
@@ -376,11 +380,13 @@ fn draw_band<DB: DrawingBackend>(
 fn draw_centre<DB: DrawingBackend>(
     chart: &mut F64Chart<'_, DB>,
     v: &VariantSummary,
-    metric: CurveMetric,
+    metric: MetricId,
     x_max: f64,
     name: &'static str,
 ) -> Result<(), ChartError> {
-    let c = &v.curves[&metric];
+    let Some(c) = v.curves.get(&metric) else {
+        return Ok(());
+    };
     let colour = variant_colour(v.index);
     if v.info.kind == VariantKind::Baseline {
         if let Some(p) = baseline_level(v, metric).filter(|p| p.point.is_finite()) {

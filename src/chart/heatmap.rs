@@ -5,6 +5,7 @@
 use super::render::Chart;
 use super::style::*;
 use super::ChartError;
+use crate::analysis::metric::SUCCESS;
 use crate::analysis::{StudySummary, VariantSummary};
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -121,8 +122,8 @@ const METRICS: [Metric; 2] = [
     },
     Metric {
         title: "IQM final success (higher = darker = better)",
-        value: |v| v.final_success.iqm.point,
-        label: |v| fmt_num(v.final_success.iqm.point),
+        value: |v| v.figure(SUCCESS).iqm.point,
+        label: |v| fmt_num(v.figure(SUCCESS).iqm.point),
         lower_is_better: false,
     },
 ];

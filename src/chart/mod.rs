@@ -107,15 +107,8 @@ pub fn write_report_from(
         render::render(&panels::TermChart { summary }, &charts_dir)?,
         render::render(&panels::ShapingChart { summary }, &charts_dir)?,
     ];
-    let with_curriculum = curves::curriculum_variants(summary);
-    if !with_curriculum.is_empty() {
-        charts.push(render::render(
-            &curves::CurriculumChart {
-                summary,
-                variants: with_curriculum,
-            },
-            &charts_dir,
-        )?);
+    for chart in curves::metric_charts(summary, opts.per_seed_lines) {
+        charts.push(render::render(&chart, &charts_dir)?);
     }
     if !training::with_training(summary).is_empty() {
         charts.push(render::render(

@@ -6,7 +6,8 @@ use super::curves::segments;
 use super::render::Chart;
 use super::style::*;
 use super::ChartError;
-use crate::analysis::{CurveMetric, StudySummary, VariantKind};
+use crate::analysis::metric::{RETURN, SUCCESS};
+use crate::analysis::{StudySummary, VariantKind};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, VPos};
@@ -202,8 +203,8 @@ impl Chart for ShapingChart<'_> {
         let cells = grid.split_evenly((grid_rows(which.len()), COLS));
         for (cell, &i) in cells.iter().zip(&which) {
             let v = &s.variants[i];
-            let ret = &v.curves[&CurveMetric::Return];
-            let suc = &v.curves[&CurveMetric::Success];
+            let ret = &v.curves[&RETURN];
+            let suc = &v.curves[&SUCCESS];
             let ys: Vec<f64> = ret
                 .points
                 .iter()

@@ -1,7 +1,9 @@
 //! summary.csv: one row per variant with every study figure and its confidence interval, plus the
-//! run-status counts, so the numbers behind the charts can be read by other tools. "success" in a
+//! run-status counts, so the numbers behind the charts can be read by other tools. The final figures are
+//! those of `analysis::metric::METRICS` (after the AUC), in list order. "success" in a
 //! column name always means clean success (goal reached, no contact).
 
+use crate::analysis::metric::with_final;
 use crate::analysis::{Aggregate, Estimate, PValueMethod, StudySummary, VariantKind};
 
 /// Column names of summary.csv, in order.
@@ -29,7 +31,8 @@ pub fn header() -> Vec<String> {
     .iter()
     .map(|s| s.to_string())
     .collect();
-    for m in AGG_NAMES {
+    let keys = std::iter::once("auc").chain(with_final().map(|(_, _, f)| f.key));
+    for m in keys {
         for suffix in ["n", "iqm", "iqm_lo", "iqm_hi", "mean", "mean_lo", "mean_hi"] {
             h.push(format!("{m}_{suffix}"));
         }
@@ -64,22 +67,6 @@ pub fn header() -> Vec<String> {
     }
     h
 }
-
-const AGG_NAMES: [&str; 13] = [
-    "auc",
-    "final_success",
-    "final_reached",
-    "final_collision_rate",
-    "episode_steps",
-    "final_return",
-    "time_to_goal_s",
-    "rms_joint_acc_rad_s2",
-    "peak_joint_acc_rad_s2",
-    "rms_jerk_rad_s3",
-    "path_length_m",
-    "min_clearance_m",
-    "replans",
-];
 
 fn num(x: f64) -> String {
     if x.is_finite() {
@@ -140,22 +127,9 @@ pub fn summary_csv(s: &StudySummary) -> Result<Vec<u8>, csv::Error> {
                 "seeds (stratified bootstrap)".to_string()
             },
         ]);
-        for a in [
-            &v.auc,
-            &v.final_success,
-            &v.final_reached,
-            &v.final_collision,
-            &v.episode_steps,
-            &v.final_return,
-            &v.time_to_goal,
-            &v.rms_joint_acc,
-            &v.peak_joint_acc,
-            &v.rms_jerk,
-            &v.path_length,
-            &v.min_clearance,
-            &v.replans,
-        ] {
-            row.extend(agg_cells(a));
+        row.extend(agg_cells(&v.auc));
+        for (id, _, _) in with_final() {
+            row.extend(agg_cells(&v.figure(id)));
         }
         match &v.vs_reference {
             Some(c) => {

@@ -1,6 +1,7 @@
 //! The short plain-text ranking printed at the end of `termwise run` and `termwise report`.
 
 use super::style::fmt_steps;
+use crate::analysis::metric::{with_final, MetricId};
 use crate::analysis::{Estimate, StudySummary, VariantSummary};
 use std::fmt::Write;
 
@@ -79,10 +80,21 @@ pub fn terminal_summary(s: &StudySummary) -> String {
         "steps to {:.0}% clean success",
         s.study.success_threshold * 100.0
     );
+    // The metrics shown in the ranking (`Metric::terminal`), in list order.
+    let shown: Vec<(MetricId, &str)> = with_final()
+        .filter_map(|(id, m, _)| m.terminal.map(|head| (id, head)))
+        .collect();
+    let cells = |v: &VariantSummary| -> String {
+        shown
+            .iter()
+            .map(|&(id, _)| format!("{:<20}  ", est(&v.figure(id).iqm)))
+            .collect()
+    };
+    let heads: String = shown.iter().map(|(_, h)| format!("{h:<20}  ")).collect();
     let _ = writeln!(
         out,
-        "{:<9}  {:<width$}  {:<34}  {:<20}  {:<20}  steps vs {}",
-        "group", "variant", steps_head, "clean success", "collision rate", s.reference
+        "{:<9}  {:<width$}  {:<34}  {heads}steps vs {}",
+        "group", "variant", steps_head, s.reference
     );
     for i in s.ranking() {
         let v = &s.variants[i];
@@ -112,12 +124,11 @@ pub fn terminal_summary(s: &StudySummary) -> String {
         }
         let _ = writeln!(
             out,
-            "{:<9}  {:<width$}  {:<34}  {:<20}  {:<20}  {}{}",
+            "{:<9}  {:<width$}  {:<34}  {}{}{}",
             group,
             v.info.name,
             steps(v),
-            est(&v.final_success.iqm),
-            est(&v.final_collision.iqm),
+            cells(v),
             vs,
             notes
         );
@@ -126,13 +137,12 @@ pub fn terminal_summary(s: &StudySummary) -> String {
         let v = &s.variants[b];
         let _ = writeln!(
             out,
-            "{:<9}  {:<width$}  {:<34}  {:<20}  {:<20}  (not ranked; intervals over {} evaluation episodes)",
+            "{:<9}  {:<width$}  {:<34}  {}(not ranked; intervals over {} evaluation episodes)",
             "yardstick",
             v.info.name,
             "no learning",
-            est(&v.final_success.iqm),
-            est(&v.final_collision.iqm),
-            v.episode_level.map_or(0, |e| e.episodes)
+            cells(v),
+            v.episode_level.as_ref().map_or(0, |e| e.episodes)
         );
     }
     let _ = writeln!(out, "{}", plain(&super::html::headline(s)));

@@ -10,7 +10,9 @@ use super::LearnError;
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct PpoConfig {
-    /// Environments stepped together in one run. Default 16 (project choice).
+    /// Environments stepped together in one run. Default 16 (project choice). On the four-obstacle task (curriculum
+    /// comparison, uniform starts, 5 seeds x 300k steps, 2026-12-03):
+    /// 16 x 128 ended at 0.78 [0.53, 0.90] clean success (IQM, 95% CI), 32 x 64 at 0.60 [0.47, 0.81], ranked below.
     pub num_envs: usize,
     /// Steps per environment per rollout; samples per iteration = `num_envs * rollout_steps`.
     /// Default 128 (16 x 128 = 2048, the horizon T of Schulman et al. 2017, Table 3).
@@ -32,7 +34,9 @@ pub struct PpoConfig {
     pub learning_rate: f64,
     /// Environment steps over which the step size falls linearly to zero; 0 keeps it constant.
     /// Default 0 (Table 3 uses a constant step size; the study runner sets its budget here to
-    /// get linear decay).
+    /// get linear decay). On the four-obstacle task (curriculum comparison, uniform starts, 5 seeds x 300k steps,
+    /// 2026-12-03):
+    /// decay over the budget 0.78 [0.53, 0.90] clean success, constant 0.66 [0.47, 0.77], ranked below.
     pub lr_decay_steps: u64,
     /// Adam first-moment decay beta1. Default 0.9 (Kingma & Ba 2015, Algorithm 1).
     pub adam_beta1: f64,
@@ -56,11 +60,17 @@ pub struct PpoConfig {
     /// gradient before Adam).
     pub value_coef: f64,
     /// Weight c2 of the entropy bonus (eq. 9). Default 0.0 (the continuous-control runs of
-    /// Schulman et al. 2017 use no entropy bonus).
+    /// Schulman et al. 2017 use no entropy bonus; Andrychowicz et al. 2021 found it unhelpful in continuous
+    /// control). On the four-obstacle task (curriculum comparison, uniform starts, 5 seeds x 300k steps,
+    /// 2026-12-03):
+    /// 0 ended at 0.78 [0.53, 0.90] clean success, 0.01 at 0.65 [0.50, 0.77], ranked below.
     pub entropy_coef: f64,
     /// Clip the value prediction to within `clip_epsilon` of its old value before the squared
     /// error (pessimistic max of clipped and unclipped). Default false (plain squared error, as in
-    /// eq. 9 of Schulman et al. 2017).
+    /// eq. 9 of Schulman et al. 2017; Andrychowicz et al. 2021 and Engstrom et al. 2020 found clipping no help or
+    /// harmful). On the four-obstacle task (curriculum comparison, uniform starts, 5 seeds x 300k steps,
+    /// 2026-12-03):
+    /// without clipping 0.78 [0.53, 0.90] clean success, with it 0.53 [0.38, 0.74], ranked below.
     pub clip_value_loss: bool,
     /// Global L2 norm limit on the gradient; 0 disables. Default 0.5 (common practice).
     pub max_grad_norm: f64,
@@ -68,7 +78,9 @@ pub struct PpoConfig {
     /// joint norm. Default true (a reference PPO on a similar arm task was more stable so).
     pub separate_grad_clip: bool,
     /// Hidden layer widths of both the policy-mean and the value network (tanh activations).
-    /// Default [64, 64] (Schulman et al. 2017, section 6.1).
+    /// Default [64, 64] (Schulman et al. 2017, section 6.1). On the four-obstacle task (curriculum comparison,
+    /// uniform starts, 5 seeds x 300k steps, 2026-12-03):
+    /// [64, 64] 0.78 [0.53, 0.90] clean success, [128, 128] 0.64 [0.47, 0.81], ranked below.
     pub hidden: Vec<usize>,
     /// Let the policy network output the log standard deviation too (state-dependent std).
     /// Default false: a state-independent learned log std (Schulman et al. 2017, section 6.1).
@@ -84,7 +96,11 @@ pub struct PpoConfig {
     /// Clip normalised observations to [-obs_clip, obs_clip]. Default 10.0 (common practice).
     pub obs_clip: f64,
     /// Divide rewards by a running standard deviation of the discounted return. Default true
-    /// (common practice; the dense distance term makes raw returns of order -50 to -150).
+    /// (common practice; the dense distance term makes raw returns of order -50 to -150). On the four-obstacle task
+    /// (curriculum comparison, uniform starts, 5 seeds x 300k steps, 2026-12-03):
+    /// with scaling 0.78 [0.53, 0.90] clean success and 3 of 5 seeds at 70% by 300k, without it 0.89 [0.84, 0.90]
+    /// and 5 of 5 (119k [102k, 154k]): one group under the report's rule (P(without beats with) 0.68 [0.28, 1.00]),
+    /// so the default stays until more seeds decide it.
     pub scale_rewards: bool,
     /// Clip scaled rewards to [-reward_clip, reward_clip]. Default 10.0 (common practice).
     pub reward_clip: f64,

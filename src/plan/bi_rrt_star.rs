@@ -21,7 +21,7 @@ pub struct BiRrtStar;
 fn connect(tree: &mut Tree, space: &dyn ConfigSpace, q: &JointVec) -> Option<usize> {
     let n = space.dim();
     loop {
-        match tree.extend(space, q, false) {
+        match tree.extend(space, q) {
             Inserted::Added(j) => {
                 if distance(&tree.nodes[j], q, n) < 1e-12 {
                     return Some(j);
@@ -78,7 +78,7 @@ impl Planner for BiRrtStar {
                 (&mut tg, &mut ts)
             };
             let target = sample_uniform(space, rng);
-            let Inserted::Added(i) = grow.extend(space, &target, false) else {
+            let Inserted::Added(i) = grow.extend(space, &target) else {
                 continue;
             };
             let q = grow.nodes[i];

@@ -18,6 +18,7 @@ pub mod bi_rrt_star;
 pub mod command;
 pub mod connectivity;
 pub mod draw;
+pub mod grid_index;
 pub mod ik;
 pub mod path;
 pub mod planner;

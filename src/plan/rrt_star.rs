@@ -50,7 +50,7 @@ impl Planner for RrtStar {
             } else {
                 sample_uniform(space, rng)
             };
-            let Inserted::Added(id) = tree.extend(space, &target, false) else {
+            let Inserted::Added(id) = tree.extend(space, &target) else {
                 continue;
             };
             for (k, g) in goals.iter().enumerate() {

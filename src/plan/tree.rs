@@ -1,8 +1,9 @@
 //! The RRT* search tree shared by both planners: nodes with parent, cost-to-root and children, nearest
-//! neighbours by linear scan, and the RRT* insertion step (best parent among the near nodes, then rewiring),
+//! neighbours through a grid index (exact, and with the linear scan's tie-breaking), and the RRT* insertion step (best parent among the near nodes, then rewiring),
 //! following Karaman & Frazzoli, "Sampling-based algorithms for optimal motion planning", IJRR 2011,
 //! Algorithm 6 (RRT*) with the connection radius of Theorem 38.
 
+use super::grid_index::GridIndex;
 use super::space::{distance, lerp, ConfigSpace};
 use crate::sim::JointVec;
 
@@ -28,8 +29,10 @@ pub struct Tree {
     pub parent: Vec<usize>,
     pub cost: Vec<f64>,
     children: Vec<Vec<usize>>,
-    /// Scratch: squared distance of every node to the current query point.
-    dist: Vec<f64>,
+    /// The nodes bucketed by grid cell, for the nearest and near queries.
+    index: GridIndex,
+    /// Scratch: candidate nodes of a near query.
+    cand: Vec<usize>,
     /// Scratch: near candidates (node, cost through it, edge length).
     near: Vec<(usize, f64, f64)>,
     /// Scratch: the subtree walk of `reparent`.
@@ -70,7 +73,8 @@ impl Tree {
             parent: Vec::with_capacity(capacity),
             cost: Vec::with_capacity(capacity),
             children: Vec::with_capacity(capacity),
-            dist: Vec::with_capacity(capacity),
+            index: GridIndex::new(&(0..d).map(|i| space.bounds(i)).collect::<Vec<_>>(), step),
+            cand: Vec::new(),
             near: Vec::new(),
             stack: Vec::new(),
             gamma: rewire_factor * gamma_star,
@@ -84,6 +88,7 @@ impl Tree {
 
     fn push(&mut self, q: JointVec, parent: usize, cost: f64) -> usize {
         let id = self.nodes.len();
+        self.index.insert(id, &q);
         self.nodes.push(q);
         self.parent.push(parent);
         self.cost.push(cost);
@@ -108,78 +113,58 @@ impl Tree {
         (self.gamma * (k.ln() / k).powf(1.0 / self.n as f64)).min(self.step)
     }
 
-    /// Fill the distance scratch for query `q`; return the nearest node and its distance.
-    fn scan(&mut self, q: &JointVec) -> (usize, f64) {
-        self.dist.clear();
-        let n = self.n;
-        let mut best = (0, f64::INFINITY);
-        for (i, v) in self.nodes.iter().enumerate() {
-            let mut d2 = 0.0;
-            for k in 0..n {
-                let t = v[k] - q[k];
-                d2 += t * t;
-            }
-            self.dist.push(d2);
-            if d2 < best.1 {
-                best = (i, d2);
-            }
-        }
-        (best.0, best.1.sqrt())
+    /// The nearest node to `q` and its distance (ties: the lowest index).
+    fn nearest(&self, q: &JointVec) -> (usize, f64) {
+        let (i, d2) = self.index.nearest(&self.nodes, q);
+        (i, d2.sqrt())
     }
 
     /// Steer from the nearest node toward `target` by at most `step` and insert the result (RRT* Extend).
-    pub fn extend(
+    pub fn extend(&mut self, space: &dyn ConfigSpace, target: &JointVec) -> Inserted {
+        let (nearest, d) = self.nearest(target);
+        self.extend_from(space, target, nearest, d)
+    }
+
+    /// `extend` with the nearest node already known (`d`: its distance to `target`).
+    fn extend_from(
         &mut self,
         space: &dyn ConfigSpace,
         target: &JointVec,
-        cached_scan: bool,
+        nearest: usize,
+        d: f64,
     ) -> Inserted {
-        let (nearest, d) = if cached_scan {
-            self.nearest_from_scratch()
-        } else {
-            self.scan(target)
-        };
         if d < 1e-12 {
             return Inserted::Present(nearest);
         }
-        let (q_new, moved) = if d <= self.step {
-            (*target, d)
+        let q_new = if d <= self.step {
+            *target
         } else {
-            (
-                lerp(&self.nodes[nearest], target, self.step / d, self.n),
-                self.step,
-            )
+            lerp(&self.nodes[nearest], target, self.step / d, self.n)
         };
         if !space.config_free(&q_new) {
             return Inserted::Blocked;
         }
-        // Nodes within r of q_new are at distance (d - moved) +- r from `target` (triangle inequality), so
-        // the scan's (squared) distances to `target` prune the candidates without a second full pass.
+        // The near set: every node within r of q_new, and the nearest node, in index order.
         let r = self.radius();
-        let hi = d - moved + r + 1e-12;
-        let lo = (d - moved - r - 1e-12).max(0.0);
-        let (hi2, lo2) = (hi * hi, lo * lo);
+        let mut cand = std::mem::take(&mut self.cand);
+        self.index.candidates(&q_new, r, &mut cand);
+        cand.sort_unstable();
         self.near.clear();
-        for i in 0..self.nodes.len() {
-            let d2 = self.dist[i];
-            if (d2 <= hi2 && d2 >= lo2) || i == nearest {
-                let e = distance(&self.nodes[i], &q_new, self.n);
-                if e <= r || i == nearest {
-                    self.near.push((i, self.cost[i] + e, e));
-                }
+        let mut have_nearest = false;
+        for &i in &cand {
+            let e = distance(&self.nodes[i], &q_new, self.n);
+            if e <= r || i == nearest {
+                have_nearest |= i == nearest;
+                self.near.push((i, self.cost[i] + e, e));
             }
+        }
+        self.cand = cand;
+        if !have_nearest {
+            let e = distance(&self.nodes[nearest], &q_new, self.n);
+            let at = self.near.partition_point(|c| c.0 < nearest);
+            self.near.insert(at, (nearest, self.cost[nearest] + e, e));
         }
         self.insert_with_near(space, q_new)
-    }
-
-    fn nearest_from_scratch(&self) -> (usize, f64) {
-        let mut best = (0, f64::INFINITY);
-        for (i, &d2) in self.dist.iter().enumerate() {
-            if d2 < best.1 {
-                best = (i, d2);
-            }
-        }
-        (best.0, best.1.sqrt())
     }
 
     /// Choose the cheapest collision-free parent among `self.near` (candidates checked in order of cost, so
@@ -235,14 +220,14 @@ impl Tree {
 
     /// Insert `q` exactly (no steering) when some node lies within the step of it; used to attach goals.
     pub fn insert_exact(&mut self, space: &dyn ConfigSpace, q: &JointVec) -> Inserted {
-        let (nearest, d) = self.scan(q);
+        let (nearest, d) = self.nearest(q);
         if d < 1e-12 {
             return Inserted::Present(nearest);
         }
         if d > self.step {
             return Inserted::Blocked;
         }
-        self.extend(space, q, true)
+        self.extend_from(space, q, nearest, d)
     }
 
     /// The configurations from node `i`'s root to node `i`.

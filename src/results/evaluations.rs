@@ -1,6 +1,7 @@
 //! evaluations.csv: one `EvalRow` per evaluation of a run, written and read through serde. The header is the
 //! struct's field names (serde renames included), so a new column is one field here plus the line that fills
-//! it in the runner (and a `Metric` entry in `analysis::metric` to chart it).
+//! it in `task::metrics`, and its entry in `analysis::metric::METRICS` (what the summary, tables, report and
+//! charts make of it; a test there fails until the entry exists).
 
 use super::{csv_buffer, csv_error, display_f64, finish_csv, ResultsError, EVALUATIONS_FILE};
 use serde::{Deserialize, Serialize};

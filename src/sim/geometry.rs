@@ -60,9 +60,16 @@ fn sub(a: [f64; 2], b: [f64; 2]) -> [f64; 2] {
 fn dot(a: [f64; 2], b: [f64; 2]) -> f64 {
     a[0] * b[0] + a[1] * b[1]
 }
+/// Length of (x, y) as sqrt(x^2 + y^2): within an ulp or two of `f64::hypot` and several times faster; the
+/// overflow and underflow `hypot` guards against cannot happen at workspace scales (metres).
+#[inline]
+pub fn norm(x: f64, y: f64) -> f64 {
+    (x * x + y * y).sqrt()
+}
+
 #[inline]
 pub fn dist(a: [f64; 2], b: [f64; 2]) -> f64 {
-    (a[0] - b[0]).hypot(a[1] - b[1])
+    norm(a[0] - b[0], a[1] - b[1])
 }
 
 /// Closest point on segment [a, b] to p, as the parameter t in [0, 1].
@@ -126,7 +133,7 @@ pub fn box_sdf(p: [f64; 2], c: [f64; 2], h: [f64; 2]) -> f64 {
     let dy = (p[1] - c[1]).abs() - h[1];
     let ox = dx.max(0.0);
     let oy = dy.max(0.0);
-    ox.hypot(oy) + dx.max(dy).min(0.0)
+    norm(ox, oy) + dx.max(dy).min(0.0)
 }
 
 /// Whether segment [a, b] meets the box (slab test; Ericson 2005, section 5.3.3).
@@ -264,7 +271,7 @@ pub fn shape_shape_distance(a: &Shape, b: &Shape) -> f64 {
         ) => {
             let dx = (c1[0] - c2[0]).abs() - h1[0] - h2[0];
             let dy = (c1[1] - c2[1]).abs() - h1[1] - h2[1];
-            dx.max(0.0).hypot(dy.max(0.0)) + dx.max(dy).min(0.0)
+            norm(dx.max(0.0), dy.max(0.0)) + dx.max(dy).min(0.0)
         }
     }
 }

@@ -155,7 +155,7 @@ pub(super) fn estimate_line(exp: &Experiment, evals: u64, runs: usize, workers: 
     }
 }
 
-/// Per variant, how many evaluation draws were rejected for lack of a collision-free path (bounded in time like
+/// Per variant, how many evaluation draws were rejected (start too close to contact, or no collision-free path) (bounded in time like
 /// the calibration: after [`CALIBRATION_LIMIT_S`] it says so instead).
 pub(super) fn redraws_text(exp: &Experiment) -> String {
     let (tx, rx) = std::sync::mpsc::channel();
@@ -167,7 +167,7 @@ pub(super) fn redraws_text(exp: &Experiment) -> String {
             for v in &copy.variants {
                 let (redraws, unsolved) = run::eval_redraws(&copy, v);
                 lines.push(format!(
-                    "evaluation episodes of `{}`: {} draws rejected for lack of a collision-free path{}",
+                    "evaluation episodes of `{}`: {} draws rejected (start within twice the planning margin of contact, or no collision-free path){}",
                     v.name,
                     redraws,
                     if unsolved > 0 {

@@ -337,9 +337,8 @@ pub fn status_text(st: &StudyStatus, stale_after_s: u64) -> String {
         let _ = writeln!(s, "  (stale: `running` but its process has died: the lock holder's process id is gone on this host, or no heartbeat for more than {stale_after_s} s)");
     }
     let rerun = st.to_rerun();
-    let absent = st.count(CellState::Missing)
-        + st.count(CellState::NotNeeded)
-        + st.count(CellState::Later);
+    let absent =
+        st.count(CellState::Missing) + st.count(CellState::NotNeeded) + st.count(CellState::Later);
     let published = absent == st.cells.len()
         && st.count(CellState::Missing) > 0
         && (st.dir.join("summary.csv").is_file() || st.dir.join("report.html").is_file());

@@ -2,7 +2,7 @@
 //! drives (the last two are recorded in checkpoints and checked by `replay`).
 
 use super::experiment::{fnv1a_hex, Experiment, VariantSpec};
-use crate::task::Episode;
+use crate::task::{observation::arm_obs_dim, Episode};
 
 impl VariantSpec {
     /// A fresh episode of the task under this variant's scenario, reward, planner, discount and observation.
@@ -19,7 +19,7 @@ impl VariantSpec {
     /// The observation this variant's policy sees: its length and a description of its layout.
     pub fn observation_layout(&self) -> (usize, String) {
         let ep = self.episode();
-        let (sim, all) = (ep.sim.obs_dim(), ep.obs_dim());
+        let (sim, all) = (arm_obs_dim(&ep.sim), ep.obs_dim());
         let n = self.scenario.n();
         let mut path = if self.observation.waypoints {
             format!(" + {} waypoints x 2", self.plan.waypoints)

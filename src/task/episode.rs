@@ -2,7 +2,9 @@
 //! check of the start/goal draw), the reward composer, the observation the policy sees, and the metrics.
 
 use super::metrics::{Accum, EpisodeMetrics};
-use super::observation::ObservationSpec;
+use super::observation::{
+    arm_obs_dim, clearance_obs_dim, observe_arm, observe_clearance, ObservationSpec,
+};
 use crate::curriculum::EpisodeDraw;
 use crate::plan::connectivity::ConnectivityGrid;
 use crate::plan::{plan_path, PlanSpec, ReferencePath};
@@ -14,6 +16,13 @@ use std::sync::Arc;
 
 /// Most times an episode's start and goal are drawn again because no collision-free path joins them.
 pub const MAX_REDRAWS: usize = 50;
+
+/// A drawn start must keep this many times the reference path's clearance margin (`PlanSpec::
+/// clearance_margin`) from contact, or it is drawn again: the planner keeps its full margin only from such
+/// starts (closer ones make it lower the margin to half the start's clearance, `plan::plan_detailed`). On the
+/// quickstart's evaluation episodes, the only ones every learned policy ended in contact began 1.3 and 3.1 cm
+/// from an obstacle (margin 2 cm).
+pub const START_CLEARANCE_FACTOR: f64 = 2.0;
 
 /// How an episode's draw went: draws rejected as unsolvable, and whether the one used is still unsolved
 /// (only after `MAX_REDRAWS`).
@@ -42,7 +51,7 @@ pub struct Episode {
     pub path: ReferencePath,
     prev: StepReport,
     acc: Accum,
-    /// What the policy observes beyond the simulator's physical observation.
+    /// What the policy observes beyond the arm's part of the observation.
     obs: ObservationSpec,
     plan_rng: ChaCha8Rng,
     /// Joint-space connectivity of the obstacle layouts episodes began with (two-link arms; curricula may
@@ -80,12 +89,12 @@ impl Episode {
         }
     }
 
-    /// Observation length: the simulator's, plus 2 per waypoint when the policy is path-conditioned, plus n per
+    /// Observation length: the arm's part (`observation::arm_obs_dim`), plus 2 per waypoint when the policy is path-conditioned, plus n per
     /// waypoint with joint-space waypoints, plus 2n with the clearance entries.
     pub fn obs_dim(&self) -> usize {
         let n = self.sim.n();
         let o = &self.obs;
-        self.sim.obs_dim()
+        arm_obs_dim(&self.sim)
             + if o.waypoints {
                 2 * self.plan.waypoints
             } else {
@@ -97,7 +106,7 @@ impl Episode {
                 0
             }
             + if o.clearance {
-                self.sim.clearance_obs_dim()
+                clearance_obs_dim(&self.sim)
             } else {
                 0
             }
@@ -123,8 +132,9 @@ impl Episode {
         self.begin_with_path(d, path, rng);
     }
 
-    /// Start an episode whose start and goal are joined by a collision-free path: draw with `draw`, plan, and
-    /// when the episode's planner finds no path, check again with a generous, deterministic budget
+    /// Start an episode whose start and goal are joined by a collision-free path: draw with `draw` (again
+    /// while the start is closer to contact than `START_CLEARANCE_FACTOR` times the margin, or the joint-space
+    /// grid shows no path), plan, and when the episode's planner finds no path, check again with a generous, deterministic budget
     /// (`feasibility_spec`); draw again while that fails too, at most `MAX_REDRAWS` times (then the last draw
     /// is used and counted as unsolved). Feasibility is checked at the start of the episode, with the obstacles
     /// where they begin: with moving obstacles or goal jumps a later replan may still find no path. Returns the
@@ -140,7 +150,11 @@ impl Episode {
             let d = draw(&self.sim, rng);
             self.sim.set_difficulty(d.obstacles, d.jump_rate);
             self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
-            if !self.may_connect(&d) && redraws.redraws < MAX_REDRAWS {
+            // A start closer to contact than twice the margin would make the planner lower its margin for
+            // the whole reference path, and the episode would begin all but touching an obstacle.
+            let start_clear = self.sim.clearances(&d.start.q[..n]).0;
+            let clear_start = start_clear >= START_CLEARANCE_FACTOR * self.plan.clearance_margin;
+            if (!clear_start || !self.may_connect(&d)) && redraws.redraws < MAX_REDRAWS {
                 redraws.redraws += 1;
                 continue;
             }
@@ -252,11 +266,11 @@ impl Episode {
         self.acc.metrics(self.sim.n(), self.composer.episode_sums())
     }
 
-    /// Write the observation: the simulator's, then the next K waypoints relative to the effector (scaled by reach).
+    /// Write the observation: the arm's part (`observation::observe_arm`), then the next K waypoints relative to the effector (scaled by reach).
     /// Then, when enabled, the same waypoints' joint offsets and the clearance entries.
     pub fn observe(&self, out: &mut [f32]) {
-        let mut d = self.sim.obs_dim();
-        self.sim.observe(&mut out[..d]);
+        let mut d = arm_obs_dim(&self.sim);
+        observe_arm(&self.sim, &mut out[..d]);
         let o = &self.obs;
         if o.waypoints || o.joint_waypoints {
             let ee = self.prev.ee;
@@ -284,8 +298,8 @@ impl Episode {
             }
         }
         if o.clearance {
-            let c = self.sim.clearance_obs_dim();
-            self.sim.observe_clearance(&mut out[d..d + c]);
+            let c = clearance_obs_dim(&self.sim);
+            observe_clearance(&self.sim, &mut out[d..d + c]);
         }
     }
 }

@@ -129,7 +129,7 @@ pub struct EvalSummary {
     /// Fraction of episodes that reached the goal, contact allowed.
     pub reached_rate: f64,
     pub mean_return: f64,
-    /// Mean over successful episodes, s (NaN when none succeeded).
+    /// Mean over episodes that reached the goal (contact allowed), s (NaN when none did).
     pub time_to_goal: f64,
     pub collision_rate: f64,
     /// Mean episode length, control steps.

@@ -12,7 +12,7 @@ pub mod probe;
 pub mod trajectory;
 
 pub use env::{RunShared, TaskEnv};
-pub use episode::{feasibility_spec, Episode, Redraws, MAX_REDRAWS};
+pub use episode::{feasibility_spec, Episode, Redraws, MAX_REDRAWS, START_CLEARANCE_FACTOR};
 pub use eval::{baseline_actor, begin_eval, eval_redraws, evaluate, run_episode, Actor};
 pub use metrics::{rms_per_joint, EpisodeMetrics, EvalSummary};
 pub use observation::ObservationSpec;

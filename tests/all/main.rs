@@ -14,6 +14,7 @@ mod learn_toy;
 mod messages;
 mod plan_arm;
 mod plan_cli;
+mod plan_index;
 mod plan_planners;
 mod report;
 mod reward_alloc;

@@ -5,6 +5,7 @@
 use crate::support;
 
 use std::path::{Path, PathBuf};
+use termwise::analysis::metric::{CurveChart, METRICS};
 use termwise::analysis::{load_study, summarize, AnalysisOptions, RunStatus};
 use termwise::chart::{write_report, ReportOptions};
 
@@ -49,8 +50,11 @@ fn copy_tree(from: &Path, to: &Path) {
 #[test]
 fn fixture_matches_its_seeded_generator() {
     if std::env::var_os("TERMWISE_WRITE_FIXTURE").is_some() {
+        // The README is written by hand: keep it across the regeneration.
+        let readme = std::fs::read(fixture_dir().join("README.md")).unwrap();
         let _ = std::fs::remove_dir_all(fixture_dir());
         support::fixture::write_fixture(&fixture_dir());
+        std::fs::write(fixture_dir().join("README.md"), readme).unwrap();
     }
     let tmp = scratch("fixture");
     support::fixture::write_fixture(&tmp);
@@ -119,7 +123,8 @@ fn loading_counts_every_run_status_and_keeps_missing_runs() {
     assert_eq!(flagged, ["heavy-shaping"]);
     // Every interval contains its point estimate.
     for v in &s.variants {
-        for a in [&v.final_success, &v.auc, &v.rms_joint_acc] {
+        let finals = termwise::analysis::metric::with_final().map(|(id, _, _)| v.figure(id));
+        for a in std::iter::once(v.auc).chain(finals) {
             if a.iqm.lo.is_finite() {
                 assert!(
                     a.iqm.lo <= a.iqm.point && a.iqm.point <= a.iqm.hi,
@@ -176,17 +181,26 @@ fn report_writes_every_chart_and_each_names_every_variant() {
     };
     let files = write_report(&dir, &opts).unwrap();
     let stems: Vec<&str> = files.charts.iter().map(|c| c.stem.as_str()).collect();
-    assert_eq!(
-        stems,
-        [
-            "learning_curves",
-            "steps_to_threshold",
-            "reward_terms",
-            "shaping_check",
-            "curriculum",
-            "grid_sensitivity"
-        ]
-    );
+    // Between the fixed charts and the grid: the metrics drawn in charts of their own, in list order
+    // (the fixture has curriculum variants, so the curriculum chart is among them).
+    let own = METRICS
+        .iter()
+        .filter_map(|m| match m.curve.map(|c| c.chart) {
+            Some(CurveChart::Own(o)) => Some(o.stem),
+            _ => None,
+        });
+    let expected: Vec<&str> = [
+        "learning_curves",
+        "steps_to_threshold",
+        "reward_terms",
+        "shaping_check",
+    ]
+    .into_iter()
+    .chain(own)
+    .chain(["grid_sensitivity"])
+    .collect();
+    assert_eq!(stems, expected);
+    assert!(stems.contains(&"curriculum"));
     let all: Vec<&str> = files
         .summary
         .variants

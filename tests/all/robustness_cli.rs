@@ -427,3 +427,29 @@ fn status_tells_an_unreadable_run_record_from_a_missing_one() {
     assert!(so.contains("3 missing"), "{so}");
     let _ = std::fs::remove_dir_all(&d);
 }
+
+/// `report` on a published folder (study.json, summary and report, no run folders: what a fresh clone holds)
+/// refuses instead of replacing the published figures with an empty report, and leaves the files untouched.
+#[test]
+fn report_refuses_to_empty_a_published_folder() {
+    let d = scratch("published");
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("results/moving-goal");
+    for f in ["study.json", "summary.csv", "report.html"] {
+        std::fs::copy(src.join(f), d.join(f)).unwrap();
+    }
+    let before = std::fs::read(d.join("summary.csv")).unwrap();
+    let out = bin()
+        .args(["report", d.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2), "{out:?}");
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("no run folders"), "{err}");
+    assert_eq!(std::fs::read(d.join("summary.csv")).unwrap(), before);
+    let out = bin()
+        .args(["report", d.to_str().unwrap(), "--overwrite-published"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{out:?}");
+    let _ = std::fs::remove_dir_all(&d);
+}

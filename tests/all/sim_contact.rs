@@ -11,6 +11,7 @@ use termwise::sim::contact::{
     detect, jacobian_row, resolve_velocities, Contacts, Surroundings, MAX_PENETRATION,
 };
 use termwise::sim::{ArmEnv, ArmState, Scenario, Shape, MAX_JOINTS};
+use termwise::task::observation::{clearance_obs_dim, observe_clearance};
 
 /// A scenario text: `links` uniform rods (length, mass, radius), no gravity, no limits worth hitting.
 fn scenario(links: &[(f64, f64, f64)], control: &str, extra: &str) -> Arc<Scenario> {
@@ -362,8 +363,8 @@ fn solid_boundary_and_boxes_hold_too() {
     assert!(worst <= MAX_PENETRATION, "penetration {worst}");
 }
 
-/// The clearance entries of the observation (`ArmEnv::observe_clearance`): each link's distance to the nearest disc
-/// and the joint-space gradient of the smallest, against the closed form. For a disc of centre c and radius R and
+/// The clearance entries of the observation (`task::observation::observe_clearance`): each link's distance to
+/// the nearest disc and the joint-space gradient of the smallest, against the closed form. For a disc of centre c and radius R and
 /// a link capsule of radius r whose segment point nearest to c is p, the clearance is |p - c| - R - r and its
 /// derivative along joint j (a joint that moves p) is n . (z x (p - p_j)) with n = (p - c) / |p - c|: the planar
 /// Jacobian column z x (p - p_j) (Siciliano et al. 2009, Robotics: Modelling, Planning and Control, eq. 3.30)
@@ -379,8 +380,8 @@ fn clearance_observation_matches_the_closed_form_distance_and_its_joint_gradient
     let mut env = ArmEnv::new(sc.clone());
     let q = [0.35, 0.9];
     env.reset(ArmState::at_rest(&q), [0.0, 0.6], 0);
-    let mut out = vec![0.0f32; env.clearance_obs_dim()];
-    env.observe_clearance(&mut out);
+    let mut out = vec![0.0f32; clearance_obs_dim(&env)];
+    observe_clearance(&env, &mut out);
     let reach = 0.9;
     let mut pts = [[0.0; 2]; MAX_JOINTS + 1];
     sc.arm.joint_points(&q, &mut pts);

@@ -8,7 +8,8 @@ use termwise::curriculum::full_task_draw;
 use termwise::plan::connectivity::ConnectivityGrid;
 use termwise::plan::plan_path;
 use termwise::study::experiment;
-use termwise::task::{begin_eval, feasibility_spec, Episode};
+use termwise::task::observation::arm_obs_dim;
+use termwise::task::{begin_eval, feasibility_spec, Episode, START_CLEARANCE_FACTOR};
 
 fn quickstart_episode() -> (experiment::Experiment, Episode) {
     let exp = experiment::load(Path::new("experiments/quickstart.toml")).unwrap();
@@ -28,6 +29,12 @@ fn evaluation_episodes_all_have_a_collision_free_path_and_are_the_same_every_tim
         assert!(
             !ep.path.fallback,
             "episode {j} has no collision-free reference path"
+        );
+        // Starts keep twice the reference path's margin, so the planner never lowers it.
+        let clear = ep.sim.clearances(&ep.sim.state().q[..2]).0;
+        assert!(
+            clear >= START_CLEARANCE_FACTOR * exp.variants[0].plan.clearance_margin,
+            "episode {j} starts {clear} m from contact"
         );
         redrawn += (r.redraws > 0) as usize;
         firsts.push((ep.sim.state().q, ep.sim.goal()));
@@ -81,14 +88,14 @@ fn joint_waypoint_entries_are_the_next_waypoints_joint_offsets() {
     let mut ep = v.episode();
     let k = v.plan.waypoints;
     let n = v.scenario.n();
-    assert_eq!(ep.obs_dim(), ep.sim.obs_dim() + 2 * k + n * k);
+    assert_eq!(ep.obs_dim(), arm_obs_dim(&ep.sim) + 2 * k + n * k);
     for j in 0..5 {
         begin_eval(&mut ep, exp.study.eval_seed, j);
         let mut obs = vec![0.0f32; ep.obs_dim()];
         ep.observe(&mut obs);
         let q = ep.sim.state().q;
         assert_eq!(ep.path.joints.len(), k);
-        let base = ep.sim.obs_dim() + 2 * k;
+        let base = arm_obs_dim(&ep.sim) + 2 * k;
         for w in 0..k {
             let target = ep.path.joints[(w + 1).min(k - 1)];
             for i in 0..n {

@@ -2,6 +2,7 @@
 //! shaping term grows) and late crashes.
 
 use super::*;
+use crate::analysis::metric::{EPISODE_STEPS, REACHED, RETURN};
 
 /// Mean contribution of each reward term at each step, across the variant's runs.
 pub(super) fn term_curves(v: &VariantRuns) -> Vec<TermCurve> {
@@ -39,12 +40,12 @@ pub(super) fn term_curves(v: &VariantRuns) -> Vec<TermCurve> {
 /// dropped by at least `gaming_success_drop` by the final window, while the return at the end
 /// exceeds the return at the success peak by at least `gaming_return_rise` of the return range.
 pub(super) fn gaming_check(
-    curves: &BTreeMap<CurveMetric, Curve>,
+    curves: &BTreeMap<MetricId, Curve>,
     final_window: usize,
     opts: &AnalysisOptions,
 ) -> Option<GamingFlag> {
-    let succ = &curves[&CurveMetric::Success];
-    let ret = &curves[&CurveMetric::Return];
+    let succ = &curves[&SUCCESS];
+    let ret = &curves[&RETURN];
     if succ.steps.len() < 3 || succ.steps != ret.steps {
         return None;
     }
@@ -78,13 +79,13 @@ pub(super) fn gaming_check(
 /// shorten the mean by at most their share (an episode cannot get shorter than zero), so a larger
 /// drop needs episodes that ended early without reaching the goal.
 pub(super) fn crash_check(
-    curves: &BTreeMap<CurveMetric, Curve>,
+    curves: &BTreeMap<MetricId, Curve>,
     final_window: usize,
     opts: &AnalysisOptions,
 ) -> Option<CrashFlag> {
-    let len = &curves[&CurveMetric::EpisodeSteps];
-    let col = &curves[&CurveMetric::Collision];
-    let rea = &curves[&CurveMetric::Reached];
+    let len = &curves[&EPISODE_STEPS];
+    let col = &curves[&COLLISION];
+    let rea = &curves[&REACHED];
     if len.steps.len() < 3 || len.steps != col.steps || len.steps != rea.steps {
         return None;
     }

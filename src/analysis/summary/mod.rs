@@ -8,6 +8,7 @@ use super::bootstrap::{
 use super::compare::{mann_whitney, normal_quantile, probability_of_improvement, MannWhitney};
 use super::groups::{iqm_ratio, rank_groups, Ranked};
 use super::load::{StudyResults, VariantRuns};
+use super::metric::{with_curve, with_final, MetricId, OverEpisodes, COLLISION, SUCCESS};
 use super::run_metrics::{run_metrics, RunContext, RunMetrics, Threshold};
 use super::stats::{finite, iqm, mean, sample_std, wilson_interval};
 use crate::results::{EvalRow, RunStatus, StudyRecord, VariantKind, VariantRecord};
@@ -20,6 +21,8 @@ mod types;
 use checks::*;
 pub use types::*;
 
+/// Label of the AUC's bootstrap streams (the final figures' labels are `metric::Final::stream`).
+const TAG_AUC: u64 = 10;
 const TAG_CURVE_MEAN: u64 = 1;
 const TAG_CURVE_IQM: u64 = 2;
 const TAG_AGG_IQM: u64 = 3;
@@ -91,7 +94,7 @@ fn steps_of(runs: &[RunMetrics]) -> Vec<f64> {
 }
 
 fn success_of(runs: &[RunMetrics]) -> Vec<f64> {
-    finite(runs.iter().filter_map(|m| m.final_success))
+    finite(runs.iter().filter_map(|m| m.figure(SUCCESS)))
 }
 
 /// Rank groups (the rule is `groups::rank_groups`): walk the ranking best first; each variant joins the
@@ -216,10 +219,8 @@ fn summarize_variant(
         status.add(r.status);
     }
     let runs: Vec<RunMetrics> = v.runs.iter().map(|r| run_metrics(r, &ctx)).collect();
-    let curves = CurveMetric::ALL
-        .iter()
-        .enumerate()
-        .map(|(k, &metric)| (metric, curve(index, k as u64, v, metric, opts)))
+    let curves = with_curve()
+        .map(|(id, _, spec)| (id, curve(index, spec.stream, v, id, opts)))
         .collect::<BTreeMap<_, _>>();
     let seed_curves = v
         .runs
@@ -231,44 +232,33 @@ fn summarize_variant(
             rows: r.progress.clone(),
         })
         .collect();
-    let agg = |k: u64, f: fn(&RunMetrics) -> Option<f64>| aggregate(index, k, &runs, f, opts);
     let gaming = gaming_check(&curves, study.final_window as usize, opts);
     let crashing = crash_check(&curves, study.final_window as usize, opts);
-    let mut final_success = agg(11, |m| m.final_success);
-    let mut final_reached = agg(20, |m| m.final_reached);
-    let mut final_collision = agg(21, |m| m.final_collision);
+    let mut finals: Vec<Option<Aggregate>> = vec![None; super::metric::METRICS.len()];
+    for (id, _, f) in with_final() {
+        let values = finite(runs.iter().filter_map(|m| m.figure(id)));
+        finals[id.0] = Some(aggregate(index, f.stream, &values, opts));
+    }
     let episode_level = if v.info.kind == VariantKind::Baseline && study.eval_episodes > 0 {
         episode_level(&runs, study.eval_episodes, opts.confidence)
     } else {
         None
     };
     if let Some(e) = &episode_level {
-        for (a, est) in [
-            (&mut final_success, e.success),
-            (&mut final_reached, e.reached),
-            (&mut final_collision, e.collision),
-        ] {
-            a.iqm = est;
-            a.mean = est;
+        for &(id, est) in &e.rates {
+            if let Some(a) = finals[id.0].as_mut() {
+                a.iqm = est;
+                a.mean = est;
+            }
         }
     }
+    let auc = finite(runs.iter().filter_map(|m| m.auc));
     VariantSummary {
         training: super::training::training_health(v),
         steps_to_threshold: threshold_aggregate(index, &runs, opts),
-        auc: agg(10, |m| m.auc),
-        final_success,
-        final_reached,
-        final_collision,
-        episode_steps: agg(22, |m| m.episode_steps),
+        auc: aggregate(index, TAG_AUC, &auc, opts),
+        finals,
         episode_level,
-        final_return: agg(12, |m| m.final_return),
-        time_to_goal: agg(13, |m| m.time_to_goal),
-        rms_joint_acc: agg(14, |m| m.rms_joint_acc),
-        peak_joint_acc: agg(15, |m| m.peak_joint_acc),
-        rms_jerk: agg(16, |m| m.rms_jerk),
-        path_length: agg(17, |m| m.path_length),
-        min_clearance: agg(18, |m| m.min_clearance),
-        replans: agg(19, |m| m.replans),
         info: v.info.clone(),
         index,
         status,
@@ -286,7 +276,7 @@ fn summarize_variant(
 /// Wilson intervals of the baseline's proportions over its evaluation episodes (first finished
 /// run; its final window is one evaluation of `episodes` episodes).
 fn episode_level(runs: &[RunMetrics], episodes: u64, confidence: f64) -> Option<EpisodeLevel> {
-    let m = runs.iter().find(|m| m.final_success.is_some())?;
+    let m = runs.iter().find(|m| m.figure(SUCCESS).is_some())?;
     let n = episodes as f64;
     let est = |p: Option<f64>| match p {
         Some(p) => {
@@ -299,9 +289,10 @@ fn episode_level(runs: &[RunMetrics], episodes: u64, confidence: f64) -> Option<
     };
     Some(EpisodeLevel {
         episodes,
-        success: est(m.final_success),
-        reached: est(m.final_reached),
-        collision: est(m.final_collision),
+        rates: with_final()
+            .filter(|(_, metric, _)| metric.episodes == OverEpisodes::Proportion)
+            .map(|(id, _, _)| (id, est(m.figure(id))))
+            .collect(),
     })
 }
 
@@ -310,14 +301,15 @@ fn curve(
     index: usize,
     metric_tag: u64,
     v: &VariantRuns,
-    metric: CurveMetric,
+    metric: MetricId,
     opts: &AnalysisOptions,
 ) -> Curve {
+    let value = metric.metric().value;
     let mut by_step: BTreeMap<u64, Vec<f64>> = BTreeMap::new();
     for r in &v.runs {
         for row in &r.progress {
             let entry = by_step.entry(row.env_steps).or_default();
-            let x = metric.of(row);
+            let x = value(row);
             if x.is_finite() {
                 entry.push(x);
             }
@@ -342,19 +334,13 @@ fn curve(
     Curve { steps, points }
 }
 
-fn aggregate(
-    index: usize,
-    tag: u64,
-    runs: &[RunMetrics],
-    f: fn(&RunMetrics) -> Option<f64>,
-    opts: &AnalysisOptions,
-) -> Aggregate {
-    let xs = finite(runs.iter().filter_map(f));
+/// IQM and mean with bootstrap CIs of one figure's finite values over a variant's runs.
+fn aggregate(index: usize, tag: u64, xs: &[f64], opts: &AnalysisOptions) -> Aggregate {
     let seed = |t| stream_seed(opts.seed, &[index as u64, tag, t]);
     Aggregate {
         n: xs.len(),
-        iqm: stratified_bootstrap(&[&xs], |s| iqm(&s[0]), opts.spec(), seed(TAG_AGG_IQM)),
-        mean: stratified_bootstrap(&[&xs], |s| mean(&s[0]), opts.spec(), seed(TAG_AGG_MEAN)),
+        iqm: stratified_bootstrap(&[xs], |s| iqm(&s[0]), opts.spec(), seed(TAG_AGG_IQM)),
+        mean: stratified_bootstrap(&[xs], |s| mean(&s[0]), opts.spec(), seed(TAG_AGG_MEAN)),
     }
 }
 
@@ -394,7 +380,7 @@ fn threshold_aggregate(
 }
 
 fn compare(index: usize, x: &[RunMetrics], y: &[RunMetrics], opts: &AnalysisOptions) -> Comparison {
-    let success = |r: &[RunMetrics]| finite(r.iter().filter_map(|m| m.final_success));
+    let success = |r: &[RunMetrics]| finite(r.iter().filter_map(|m| m.figure(SUCCESS)));
     // Fewer steps is better: negate so that "greater" means "better" for P(X > Y).
     let steps = |r: &[RunMetrics]| -> Vec<f64> {
         r.iter()
@@ -421,7 +407,7 @@ fn compare(index: usize, x: &[RunMetrics], y: &[RunMetrics], opts: &AnalysisOpti
         )
     };
     let auc = |r: &[RunMetrics]| finite(r.iter().filter_map(|m| m.auc));
-    let coll = |r: &[RunMetrics]| finite(r.iter().filter_map(|m| m.final_collision));
+    let coll = |r: &[RunMetrics]| finite(r.iter().filter_map(|m| m.figure(COLLISION)));
     let diff: fn(&[Vec<f64>]) -> f64 = |s| iqm(&s[0]) - iqm(&s[1]);
     // Ratio this / reference: the reference is the second stratum.
     let ratio: fn(&[Vec<f64>]) -> f64 = |s| {

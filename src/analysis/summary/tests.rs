@@ -1,6 +1,7 @@
 //! Unit tests of the study summary.
 
 use super::*;
+use crate::analysis::metric::{EPISODE_STEPS, REACHED};
 
 fn curve(values: &[f64]) -> Curve {
     let e = |x: f64| Estimate {
@@ -21,11 +22,11 @@ fn curve(values: &[f64]) -> Curve {
     }
 }
 
-fn curves(length: &[f64], collision: &[f64], reached: &[f64]) -> BTreeMap<CurveMetric, Curve> {
+fn curves(length: &[f64], collision: &[f64], reached: &[f64]) -> BTreeMap<MetricId, Curve> {
     [
-        (CurveMetric::EpisodeSteps, curve(length)),
-        (CurveMetric::Collision, curve(collision)),
-        (CurveMetric::Reached, curve(reached)),
+        (EPISODE_STEPS, curve(length)),
+        (COLLISION, curve(collision)),
+        (REACHED, curve(reached)),
     ]
     .into_iter()
     .collect()

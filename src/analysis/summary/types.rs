@@ -114,55 +114,6 @@ pub struct Curve {
     pub points: Vec<PointStat>,
 }
 
-/// The metrics drawn against env steps.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
-pub enum CurveMetric {
-    /// Clean success rate (goal reached, no contact), fraction.
-    Success,
-    /// Mean shaped return.
-    Return,
-    /// Time to goal, s.
-    TimeToGoal,
-    /// RMS joint acceleration, rad/s^2.
-    RmsJointAcc,
-    /// Curriculum difficulty, [0, 1].
-    CurriculumLevel,
-    /// Reached rate (goal reached, contact allowed), fraction.
-    Reached,
-    /// Collision rate (episodes with any contact), fraction.
-    Collision,
-    /// Mean episode length, control steps.
-    EpisodeSteps,
-}
-
-impl CurveMetric {
-    /// All curve metrics (new ones go at the end: the position labels each bootstrap stream).
-    pub const ALL: [CurveMetric; 8] = [
-        CurveMetric::Success,
-        CurveMetric::Return,
-        CurveMetric::TimeToGoal,
-        CurveMetric::RmsJointAcc,
-        CurveMetric::CurriculumLevel,
-        CurveMetric::Reached,
-        CurveMetric::Collision,
-        CurveMetric::EpisodeSteps,
-    ];
-
-    /// Value of this metric in a progress row.
-    pub fn of(self, r: &EvalRow) -> f64 {
-        match self {
-            CurveMetric::Success => r.success_rate,
-            CurveMetric::Return => r.mean_return,
-            CurveMetric::TimeToGoal => r.time_to_goal,
-            CurveMetric::RmsJointAcc => r.rms_joint_acc,
-            CurveMetric::CurriculumLevel => r.curriculum_level,
-            CurveMetric::Reached => r.reached_rate,
-            CurveMetric::Collision => r.collision_rate,
-            CurveMetric::EpisodeSteps => r.episode_steps,
-        }
-    }
-}
-
 /// One seed's raw curve (for faint per-seed lines).
 #[derive(Debug, Clone, PartialEq)]
 pub struct SeedCurve {
@@ -194,6 +145,15 @@ pub struct Aggregate {
     pub iqm: Estimate,
     /// Mean with bootstrap CI.
     pub mean: Estimate,
+}
+
+impl Aggregate {
+    /// No run has the figure.
+    pub const NONE: Aggregate = Aggregate {
+        n: 0,
+        iqm: Estimate::NONE,
+        mean: Estimate::NONE,
+    };
 }
 
 /// Steps-to-threshold across a variant's runs.
@@ -265,17 +225,21 @@ pub struct CrashFlag {
 }
 
 /// The classical controller's figures with intervals over its evaluation episodes (it is
-/// deterministic, so seeds add nothing): Wilson score intervals of each proportion.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+/// deterministic, so seeds add nothing): Wilson score intervals of each proportion (the metrics with
+/// a final figure formed as `OverEpisodes::Proportion`).
+#[derive(Debug, Clone, PartialEq)]
 pub struct EpisodeLevel {
     /// Evaluation episodes behind each proportion.
     pub episodes: u64,
-    /// Clean success rate with its Wilson interval.
-    pub success: Estimate,
-    /// Reached rate with its Wilson interval.
-    pub reached: Estimate,
-    /// Collision rate with its Wilson interval.
-    pub collision: Estimate,
+    /// Each proportion with its Wilson interval, in the order of `METRICS`.
+    pub rates: Vec<(MetricId, Estimate)>,
+}
+
+impl EpisodeLevel {
+    /// The proportion `m` with its Wilson interval (None when `m` is not a proportion).
+    pub fn rate(&self, m: MetricId) -> Option<Estimate> {
+        self.rates.iter().find(|(id, _)| *id == m).map(|(_, e)| *e)
+    }
 }
 
 /// How a learned variant stands against the classical controller on one figure.
@@ -298,8 +262,8 @@ pub struct VariantSummary {
     pub index: usize,
     /// Run status counts.
     pub status: StatusCounts,
-    /// Learning curves by metric.
-    pub curves: BTreeMap<CurveMetric, Curve>,
+    /// Learning curves of the metrics with one (`Metric::curve`).
+    pub curves: BTreeMap<MetricId, Curve>,
     /// Raw per-seed curves.
     pub seed_curves: Vec<SeedCurve>,
     /// Reward-term attribution curves.
@@ -310,33 +274,11 @@ pub struct VariantSummary {
     pub steps_to_threshold: ThresholdAggregate,
     /// Area under the success curve.
     pub auc: Aggregate,
-    /// Final clean success rate (goal reached, no contact). For a baseline the interval is
-    /// episode-level (Wilson), see `episode_level`.
-    pub final_success: Aggregate,
-    /// Final reached rate (contact allowed).
-    pub final_reached: Aggregate,
-    /// Final collision rate.
-    pub final_collision: Aggregate,
-    /// Final mean episode length, control steps.
-    pub episode_steps: Aggregate,
+    /// Final figure of each metric, in the order of `METRICS` (None for metrics without one). For a
+    /// baseline the proportions carry episode-level (Wilson) intervals, see `episode_level`.
+    pub finals: Vec<Option<Aggregate>>,
     /// Baselines: proportions with intervals over evaluation episodes.
     pub episode_level: Option<EpisodeLevel>,
-    /// Final mean return.
-    pub final_return: Aggregate,
-    /// Final time to goal, s.
-    pub time_to_goal: Aggregate,
-    /// Final RMS joint acceleration, rad/s^2.
-    pub rms_joint_acc: Aggregate,
-    /// Final peak joint acceleration, rad/s^2.
-    pub peak_joint_acc: Aggregate,
-    /// Final RMS jerk, rad/s^3.
-    pub rms_jerk: Aggregate,
-    /// Final effector path length, m.
-    pub path_length: Aggregate,
-    /// Final minimum clearance, m.
-    pub min_clearance: Aggregate,
-    /// Final replans per episode.
-    pub replans: Aggregate,
     /// Against the reference (None for the reference itself).
     pub vs_reference: Option<Comparison>,
     /// Set when return rose while clean success fell.
@@ -347,6 +289,17 @@ pub struct VariantSummary {
     pub group: Option<usize>,
     /// What PPO did per iteration, across seeds (None for the baseline and runs without training.csv).
     pub training: Option<crate::analysis::training::TrainingHealth>,
+}
+
+impl VariantSummary {
+    /// The final figure of metric `m` across the variant's runs (`Aggregate::NONE` for a metric without one).
+    pub fn figure(&self, m: MetricId) -> Aggregate {
+        self.finals
+            .get(m.0)
+            .copied()
+            .flatten()
+            .unwrap_or(Aggregate::NONE)
+    }
 }
 
 /// The estimate of how many seeds would separate the top two learned variants.
@@ -404,7 +357,11 @@ impl StudySummary {
             .filter(|&i| self.variants[i].info.kind == VariantKind::Learned)
             .map(|i| {
                 let v = &self.variants[i];
-                (i, v.steps_to_threshold.iqm.point, v.final_success.iqm.point)
+                (
+                    i,
+                    v.steps_to_threshold.iqm.point,
+                    v.figure(SUCCESS).iqm.point,
+                )
             })
             .collect();
         crate::analysis::groups::rank_order(&keys)

@@ -4,6 +4,7 @@
 
 use super::render::ChartFiles;
 use super::style::fmt_steps;
+use crate::analysis::metric::{with_final, MetricId};
 use crate::analysis::{
     verdict, Estimate, RunStatus, StudySummary, VariantKind, VariantSummary, Verdict,
 };
@@ -201,10 +202,33 @@ fn answer(h: &mut String, s: &StudySummary) {
     let conf = s.options.confidence * 100.0;
     let _ = write!(
         h,
-        "<div style=\"overflow-x:auto\"><table id=ranking><tr><th>group</th><th>variant</th><th>steps to {:.0}% clean success<br><span class=ci>IQM [{conf:.0}% CI]</span></th><th>final clean success<br><span class=ci>IQM [CI]</span></th><th>reached<br><span class=ci>contact allowed</span></th><th>collision rate<br><span class=ci>episodes with contact</span></th><th>steps vs {ref}<br><span class=ci>ratio [CI], &lt;1 faster</span></th><th>clean success vs {ref}<br><span class=ci>difference [CI]</span></th><th>AUC vs {ref}<br><span class=ci>difference [CI]</span></th><th>notes</th></tr>",
+        "<div style=\"overflow-x:auto\"><table id=ranking><tr><th>group</th><th>variant</th><th>steps to {:.0}% clean success<br><span class=ci>IQM [{conf:.0}% CI]</span></th>",
         s.study.success_threshold * 100.0,
+    );
+    // The metrics shown in the ranking, in list order.
+    let shown: Vec<MetricId> = with_final()
+        .filter(|(_, m, _)| m.ranking.is_some())
+        .map(|(id, _, _)| id)
+        .collect();
+    for (head, note) in with_final().filter_map(|(_, m, _)| m.ranking) {
+        let _ = write!(
+            h,
+            "<th>{}<br><span class=ci>{}</span></th>",
+            esc(head),
+            esc(note)
+        );
+    }
+    let _ = write!(
+        h,
+        "<th>steps vs {ref}<br><span class=ci>ratio [CI], &lt;1 faster</span></th><th>clean success vs {ref}<br><span class=ci>difference [CI]</span></th><th>AUC vs {ref}<br><span class=ci>difference [CI]</span></th><th>notes</th></tr>",
         ref = esc(&s.reference)
     );
+    let cells = |v: &VariantSummary| -> String {
+        shown
+            .iter()
+            .map(|&id| format!("<td class=num>{}</td>", est_num(&v.figure(id).iqm)))
+            .collect()
+    };
     let rank = s.ranking();
     for &i in &rank {
         let v = &s.variants[i];
@@ -227,12 +251,10 @@ fn answer(h: &mut String, s: &StudySummary) {
         };
         let _ = write!(
             h,
-            "<tr><td>{group}</td><td>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num>{r}</td><td class=num>{d}</td><td class=num>{a}</td><td>{}</td></tr>",
+            "<tr><td>{group}</td><td>{}</td><td class=num>{}</td>{}<td class=num>{r}</td><td class=num>{d}</td><td class=num>{a}</td><td>{}</td></tr>",
             swatch(v),
             steps_cell(v),
-            est_num(&v.final_success.iqm),
-            est_num(&v.final_reached.iqm),
-            est_num(&v.final_collision.iqm),
+            cells(v),
             notes(v)
         );
     }
@@ -240,11 +262,9 @@ fn answer(h: &mut String, s: &StudySummary) {
         let v = &s.variants[b];
         let _ = write!(
             h,
-            "<tr class=yardstick><td><span class=tag>yardstick</span></td><td>{}</td><td class=num><span class=na>no learning</span></td><td class=num>{}</td><td class=num>{}</td><td class=num>{}</td><td class=num><span class=na>—</span></td><td class=num><span class=na>—</span></td><td class=num><span class=na>—</span></td><td>{}</td></tr>",
+            "<tr class=yardstick><td><span class=tag>yardstick</span></td><td>{}</td><td class=num><span class=na>no learning</span></td>{}<td class=num><span class=na>—</span></td><td class=num><span class=na>—</span></td><td class=num><span class=na>—</span></td><td>{}</td></tr>",
             swatch(v),
-            est_num(&v.final_success.iqm),
-            est_num(&v.final_reached.iqm),
-            est_num(&v.final_collision.iqm),
+            cells(v),
             if v.episode_level.is_some() {
                 "<span class=ci>Wilson, over episodes</span>".to_string()
             } else {
@@ -352,7 +372,20 @@ fn pairwise(h: &mut String, s: &StudySummary) {
 }
 
 fn summary_table(h: &mut String, s: &StudySummary) {
-    h.push_str("<h2>Summary table</h2><p class=ci>IQM across runs with the bootstrap confidence interval (for the classical controller: the interval over its evaluation episodes); final figures are means over the last evaluations of each run. The same numbers, with means, are in summary.csv.</p><div style=\"overflow-x:auto\"><table><tr><th>variant</th><th>runs<br><span class=ci>done/planned</span></th><th>AUC<br><span class=ci>success curve, 0–1</span></th><th>final clean success</th><th>reached<br><span class=ci>contact allowed</span></th><th>collision rate</th><th>episode length<br><span class=ci>control steps</span></th><th>final return</th><th>time to goal<br><span class=ci>s</span></th><th>RMS joint acc.<br><span class=ci>rad/s²</span></th><th>peak joint acc.<br><span class=ci>rad/s²</span></th><th>RMS jerk<br><span class=ci>rad/s³</span></th><th>path length<br><span class=ci>m</span></th><th>min clearance<br><span class=ci>m</span></th><th>replans<br><span class=ci>per episode</span></th></tr>");
+    h.push_str("<h2>Summary table</h2><p class=ci>IQM across runs with the bootstrap confidence interval (for the classical controller: the interval over its evaluation episodes); final figures are means over the last evaluations of each run. The same numbers, with means, are in summary.csv.</p><div style=\"overflow-x:auto\"><table><tr><th>variant</th><th>runs<br><span class=ci>done/planned</span></th><th>AUC<br><span class=ci>success curve, 0–1</span></th>");
+    for (_, m, _) in with_final() {
+        if m.unit.is_empty() {
+            let _ = write!(h, "<th>{}</th>", esc(m.head));
+        } else {
+            let _ = write!(
+                h,
+                "<th>{}<br><span class=ci>{}</span></th>",
+                esc(m.head),
+                esc(m.unit)
+            );
+        }
+    }
+    h.push_str("</tr>");
     for v in &s.variants {
         let _ = write!(
             h,
@@ -361,22 +394,9 @@ fn summary_table(h: &mut String, s: &StudySummary) {
             v.status.done,
             v.status.total()
         );
-        for a in [
-            &v.auc,
-            &v.final_success,
-            &v.final_reached,
-            &v.final_collision,
-            &v.episode_steps,
-            &v.final_return,
-            &v.time_to_goal,
-            &v.rms_joint_acc,
-            &v.peak_joint_acc,
-            &v.rms_jerk,
-            &v.path_length,
-            &v.min_clearance,
-            &v.replans,
-        ] {
-            let _ = write!(h, "<td class=num>{}</td>", est_g(&a.iqm));
+        let _ = write!(h, "<td class=num>{}</td>", est_g(&v.auc.iqm));
+        for (id, _, _) in with_final() {
+            let _ = write!(h, "<td class=num>{}</td>", est_g(&v.figure(id).iqm));
         }
         h.push_str("</tr>");
     }
@@ -434,33 +454,4 @@ fn changes(h: &mut String, s: &StudySummary) {
             esc(&s.study.config_toml)
         );
     }
-}
-
-fn methods(h: &mut String, s: &StudySummary) {
-    let o = &s.options;
-    let _ = write!(
-        h,
-        "<h2>How these numbers were computed</h2><ul>\
-<li>IQM = interquartile mean, the mean of the middle 50% of runs (25% trimmed mean); intervals are {:.0}% percentile intervals of a stratified bootstrap that resamples seeds within each variant, {} resamples, seed {} (Agarwal et al., “Deep RL at the Edge of the Statistical Precipice”, NeurIPS 2021).</li>\
-<li>Success means clean success: an evaluation episode succeeds when the effector reaches the goal region and no contact (obstacle, workspace boundary or the arm itself) happened in it. The reached rate counts episodes that reached the goal, contact allowed; the collision rate counts episodes with any contact.</li>\
-<li>Steps to threshold: first evaluation with clean success rate ≥ {}. Runs that finished without reaching it are censored at the budget (shown as such, ranked worse than any run that reached it; “≥” marks an IQM that is only a lower bound). Unfinished runs that have not reached it yet are left out and counted.</li>\
-<li>AUC: area under the clean-success curve from the first evaluation to the budget divided by its width (1 = always successful). Final figures: mean of the last {} evaluations.</li>\
-<li>Diverged runs count as failures: success 0 after divergence and final success 0; interrupted or running runs are excluded from AUC and final figures. Every run is listed under Run status.</li>\
-<li>Probability of improvement P(X &gt; Y) counts pairs of runs (ties count one half), with a stratified bootstrap interval. Mann-Whitney U p-values are two-sided: exact without ties for small samples, otherwise the normal approximation with tie and continuity corrections.</li>\
-<li>The classical controller is deterministic, so seeds add nothing: its proportions carry {:.0}% Wilson score intervals over its evaluation episodes (Wilson, JASA 1927). A learned variant beats it on a figure when the variant's interval lies entirely on the better side of the controller's.</li>\
-<li>Seeds needed: with d the observed log ratio of the top two variants' steps to threshold and sd its bootstrap standard deviation at n seeds, n' = n ((z<sub>1-α/2</sub> + z<sub>{:.2}</sub>) sd / |d|)² seeds per variant would show the difference with power {:.2}; an estimate that takes the observed difference and spread as true.</li>\
-<li>Reward-gaming flags: (1) mean clean success fell by at least {} after its peak while mean return rose by at least {:.0}% of its range; (2) from the evaluation with the longest episodes, mean episode length fell by at least {:.0}% while the collision rate rose by at least {}, and the length fell by a larger fraction than the reached rate rose (newly reached goals can shorten the mean by at most their share), so episodes ended early without reaching the goal.</li></ul>",
-        o.confidence * 100.0,
-        o.resamples,
-        o.seed,
-        s.study.success_threshold,
-        s.study.final_window,
-        o.confidence * 100.0,
-        o.power,
-        o.power,
-        o.gaming_success_drop,
-        o.gaming_return_rise * 100.0,
-        o.crash_length_drop * 100.0,
-        o.crash_collision_rise
-    );
 }

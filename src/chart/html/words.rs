@@ -1,7 +1,8 @@
-//! The sentences of the report: the plan in words, the headline answer with its intervals, and the yardstick
-//! against the classical controller.
+//! The sentences of the report: the plan in words, the headline answer with its intervals, the yardstick
+//! against the classical controller, and how the numbers were computed.
 
 use super::*;
+use crate::analysis::metric::{with_final, Better, Metric, MetricId, SUCCESS};
 
 /// "3 learned variants × 5 seeds + the classical controller (1 deterministic run)", with the
 /// singular where it applies.
@@ -125,7 +126,7 @@ pub fn headline(s: &StudySummary) -> String {
             fmt_steps(s.study.budget_steps as f64),
             join_names(&names),
             if top.len() == 1 { "s" } else { "" },
-            est_num(&l.final_success.iqm)
+            est_num(&l.figure(SUCCESS).iqm)
         );
         if top.len() > 1 {
             let _ = write!(
@@ -144,7 +145,7 @@ pub fn headline(s: &StudySummary) -> String {
             "{} reaches {thr:.0}% clean success fastest: {} environment steps (IQM across seeds), final clean success {}.",
             names[0],
             steps_cell(l),
-            est_num(&l.final_success.iqm)
+            est_num(&l.figure(SUCCESS).iqm)
         )
     } else {
         format!(
@@ -153,7 +154,7 @@ pub fn headline(s: &StudySummary) -> String {
             plural(seeds),
             names[0],
             steps_cell(l),
-            est_num(&l.final_success.iqm)
+            est_num(&l.figure(SUCCESS).iqm)
         )
     };
     match s.gap {
@@ -219,49 +220,54 @@ pub fn headline(s: &StudySummary) -> String {
     out
 }
 
-/// A figure compared against the controller: name, accessor, whether higher is better.
-pub(super) type Figure = (&'static str, fn(&VariantSummary) -> Estimate, bool);
-
 /// One sentence per baseline: its figures with episode-level intervals and which learned variants
 /// beat it on which figure.
 pub fn yardstick_text(s: &StudySummary) -> Vec<String> {
-    let figures: [Figure; 4] = [
-        ("clean success", |v| v.final_success.iqm, true),
-        ("collision rate", |v| v.final_collision.iqm, false),
-        ("time to goal", |v| v.time_to_goal.iqm, false),
-        ("RMS joint acceleration", |v| v.rms_joint_acc.iqm, false),
-    ];
+    // The metrics marked `yardstick`, in list order.
+    let figures: Vec<(MetricId, &Metric)> = with_final()
+        .filter(|(_, m, _)| m.yardstick)
+        .map(|(id, m, _)| (id, m))
+        .collect();
     let mut out = Vec::new();
     for b in s.baselines() {
         let base = &s.variants[b];
         let mut t = format!("<b>{}</b> (yardstick, not ranked)", esc(&base.info.name));
         match &base.episode_level {
             Some(e) => {
+                let rates: Vec<String> = e
+                    .rates
+                    .iter()
+                    .map(|(id, est)| format!("{} {}", id.metric().name, est_num(est)))
+                    .collect();
                 let _ = write!(
                     t,
-                    ": clean success {}, reached {}, collision rate {} over its {} evaluation episodes (Wilson intervals: the controller is deterministic, so its spread comes from the episodes, not from seeds).",
-                    est_num(&e.success),
-                    est_num(&e.reached),
-                    est_num(&e.collision),
+                    ": {} over its {} evaluation episodes (Wilson intervals: the controller is deterministic, so its spread comes from the episodes, not from seeds).",
+                    rates.join(", "),
                     e.episodes
                 );
             }
             None => {
-                let _ = write!(t, ": clean success {}.", est_num(&base.final_success.iqm));
+                let _ = write!(
+                    t,
+                    ": {} {}.",
+                    SUCCESS.metric().name,
+                    est_num(&base.figure(SUCCESS).iqm)
+                );
             }
         }
         let mut parts = Vec::new();
-        for (name, f, higher) in figures {
+        for &(id, metric) in &figures {
+            let higher = metric.better == Better::Higher;
             let (mut better, mut worse) = (Vec::new(), Vec::new());
             for i in s.ranking() {
                 let v = &s.variants[i];
-                match verdict(&f(v), &f(base), higher) {
+                match verdict(&v.figure(id).iqm, &base.figure(id).iqm, higher) {
                     Some(Verdict::Better) => better.push(esc(&v.info.name)),
                     Some(Verdict::Worse) => worse.push(esc(&v.info.name)),
                     _ => {}
                 }
             }
-            let mut p = format!("{name}: ");
+            let mut p = format!("{}: ", metric.name);
             if better.is_empty() {
                 p.push_str("no learned variant beats it");
             } else {
@@ -290,4 +296,34 @@ pub fn yardstick_text(s: &StudySummary) -> Vec<String> {
         out.push(t);
     }
     out
+}
+
+/// How the numbers were computed: the report's closing list.
+pub(super) fn methods(h: &mut String, s: &StudySummary) {
+    let o = &s.options;
+    let _ = write!(
+        h,
+        "<h2>How these numbers were computed</h2><ul>\
+<li>IQM = interquartile mean, the mean of the middle 50% of runs (25% trimmed mean); intervals are {:.0}% percentile intervals of a stratified bootstrap that resamples seeds within each variant, {} resamples, seed {} (Agarwal et al., “Deep RL at the Edge of the Statistical Precipice”, NeurIPS 2021).</li>\
+<li>Success means clean success: an evaluation episode succeeds when the effector reaches the goal region and no contact (obstacle, workspace boundary or the arm itself) happened in it. The reached rate counts episodes that reached the goal, contact allowed; the collision rate counts episodes with any contact.</li>\
+<li>Steps to threshold: first evaluation with clean success rate ≥ {}. Runs that finished without reaching it are censored at the budget (shown as such, ranked worse than any run that reached it; “≥” marks an IQM that is only a lower bound). Unfinished runs that have not reached it yet are left out and counted.</li>\
+<li>AUC: area under the clean-success curve from the first evaluation to the budget divided by its width (1 = always successful). Final figures: mean of the last {} evaluations.</li>\
+<li>Diverged runs count as failures: success 0 after divergence and final success 0; interrupted or running runs are excluded from AUC and final figures. Every run is listed under Run status.</li>\
+<li>Probability of improvement P(X &gt; Y) counts pairs of runs (ties count one half), with a stratified bootstrap interval. Mann-Whitney U p-values are two-sided: exact without ties for small samples, otherwise the normal approximation with tie and continuity corrections.</li>\
+<li>The classical controller is deterministic, so seeds add nothing: its proportions carry {:.0}% Wilson score intervals over its evaluation episodes (Wilson, JASA 1927). A learned variant beats it on a figure when the variant's interval lies entirely on the better side of the controller's.</li>\
+<li>Seeds needed: with d the observed log ratio of the top two variants' steps to threshold and sd its bootstrap standard deviation at n seeds, n' = n ((z<sub>1-α/2</sub> + z<sub>{:.2}</sub>) sd / |d|)² seeds per variant would show the difference with power {:.2}; an estimate that takes the observed difference and spread as true.</li>\
+<li>Reward-gaming flags: (1) mean clean success fell by at least {} after its peak while mean return rose by at least {:.0}% of its range; (2) from the evaluation with the longest episodes, mean episode length fell by at least {:.0}% while the collision rate rose by at least {}, and the length fell by a larger fraction than the reached rate rose (newly reached goals can shorten the mean by at most their share), so episodes ended early without reaching the goal.</li></ul>",
+        o.confidence * 100.0,
+        o.resamples,
+        o.seed,
+        s.study.success_threshold,
+        s.study.final_window,
+        o.confidence * 100.0,
+        o.power,
+        o.power,
+        o.gaming_success_drop,
+        o.gaming_return_rise * 100.0,
+        o.crash_length_drop * 100.0,
+        o.crash_collision_rise
+    );
 }

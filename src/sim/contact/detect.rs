@@ -2,6 +2,7 @@
 //! boundary and other links, and each contact's row of the contact Jacobian.
 
 use super::*;
+use crate::sim::geometry::norm;
 
 #[inline]
 pub(super) fn sub(a: [f64; 2], b: [f64; 2]) -> [f64; 2] {
@@ -18,7 +19,7 @@ pub(super) fn lerp(a: [f64; 2], b: [f64; 2], t: f64) -> [f64; 2] {
 /// `v` normalised, or `fallback` when it is (numerically) zero.
 #[inline]
 pub(super) fn unit_or(v: [f64; 2], fallback: [f64; 2]) -> [f64; 2] {
-    let l = v[0].hypot(v[1]);
+    let l = norm(v[0], v[1]);
     if l > 1e-12 {
         [v[0] / l, v[1] / l]
     } else {
@@ -159,13 +160,13 @@ pub fn detect(
             let t0 = closest_param(centre, a, b);
             let p0 = lerp(a, b, t0);
             let d0 = sub(p0, centre);
-            if d0[0].hypot(d0[1]) - r - shape.bounding_radius() >= 0.0 {
+            if norm(d0[0], d0[1]) - r - shape.bounding_radius() >= 0.0 {
                 continue;
             }
             let (point, normal, depth) = match *shape {
                 Shape::Disc { center, radius } => {
                     let v = sub(p0, center);
-                    let l = v[0].hypot(v[1]);
+                    let l = norm(v[0], v[1]);
                     (p0, unit_or(v, perpendicular(a, b)), l - r - radius)
                 }
                 Shape::Box { center, half } => {
@@ -214,7 +215,7 @@ pub fn detect(
                 let (s, t) = segment_segment_params(a, b, c, d);
                 let (pi, pj) = (lerp(a, b, s), lerp(c, d, t));
                 let v = sub(pi, pj);
-                let depth = v[0].hypot(v[1]) - r - r2;
+                let depth = norm(v[0], v[1]) - r - r2;
                 if depth < 0.0 {
                     out.push(Contact {
                         link: i,

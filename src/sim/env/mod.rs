@@ -14,11 +14,7 @@ use rand_chacha::ChaCha8Rng;
 use std::sync::Arc;
 
 mod integrate;
-mod observe;
 mod obstacles;
-
-/// Obstacles described in each observation (nearest first).
-pub const OBS_OBSTACLES: usize = 2;
 
 /// Joint positions and velocities.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -221,6 +217,11 @@ impl ArmEnv {
                 *c += g;
             }
         }
+    }
+
+    /// The action applied in the last control step, physical units (zero after a reset).
+    pub fn previous_action(&self) -> &JointVec {
+        &self.prev_action
     }
 
     /// Per-joint action limit in physical units (tau_max in torque mode, acc_max in acceleration mode).

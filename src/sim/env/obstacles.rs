@@ -1,6 +1,5 @@
 //! Clearance and obstacles: signed distances from the arm to obstacles, boundary and itself, per-link
-//! clearances and their joint-space gradient for the observation, collision-free checks, obstacle motion, and
-//! random starts, configurations and goals.
+//! clearances, collision-free checks, obstacle motion, and random starts, configurations and goals.
 
 use super::*;
 
@@ -48,8 +47,8 @@ impl ArmEnv {
     }
 
     /// Each link's signed clearance to the nearest current obstacle (infinite without obstacles), m, for
-    /// configuration q; writes n values.
-    pub(super) fn link_obstacle_clearances(&self, q: &[f64], out: &mut [f64]) {
+    /// configuration q; writes n values (the observation's clearance entries, `task::observation`).
+    pub fn link_obstacle_clearances(&self, q: &[f64], out: &mut [f64]) {
         let mut pts = [[0.0; 2]; MAX_JOINTS + 1];
         self.sc.arm.joint_points(q, &mut pts);
         for (i, o) in out.iter_mut().enumerate().take(self.sc.n()) {
@@ -62,48 +61,6 @@ impl ArmEnv {
                 .iter()
                 .map(|s| capsule_shape_distance(&cap, s))
                 .fold(f64::INFINITY, f64::min);
-        }
-    }
-
-    /// Length of `observe_clearance`'s output: 2 per joint.
-    pub fn clearance_obs_dim(&self) -> usize {
-        2 * self.n()
-    }
-
-    /// The arm's clearance to the obstacles as the policy sees it (2n values): each link's signed clearance to the
-    /// nearest obstacle, scaled by the reach and capped at 1, then the joint-space gradient of the smallest of them
-    /// (d clearance / d q_i, scaled by the reach; zero without obstacles). The observation's obstacle entries
-    /// describe the effector's surroundings only, while contact mostly happens along the links; the gradient is the
-    /// joint-space direction that moves the arm away from its nearest obstacle, the repulsive direction of a
-    /// potential field (Khatib 1986, "Real-time obstacle avoidance for manipulators and mobile robots", IJRR 5(1),
-    /// eq. 14: the obstacle force mapped to the joints through the transposed Jacobian). It is taken by central
-    /// differences of the exact capsule distances (step 1e-6 rad), which is shape-agnostic (discs and boxes alike).
-    pub fn observe_clearance(&self, out: &mut [f32]) {
-        let n = self.n();
-        let reach = self.sc.arm.reach();
-        let q = self.state.q;
-        let mut per_link = [0.0; MAX_JOINTS];
-        self.link_obstacle_clearances(&q[..n], &mut per_link[..n]);
-        for i in 0..n {
-            out[i] = (per_link[i] / reach).min(1.0) as f32;
-        }
-        let nearest = |env: &ArmEnv, q: &[f64]| {
-            let mut c = [0.0; MAX_JOINTS];
-            env.link_obstacle_clearances(q, &mut c[..n]);
-            c[..n].iter().copied().fold(f64::INFINITY, f64::min)
-        };
-        const H: f64 = 1e-6;
-        for i in 0..n {
-            let mut qp = q;
-            let mut qm = q;
-            qp[i] += H;
-            qm[i] -= H;
-            let g = (nearest(self, &qp[..n]) - nearest(self, &qm[..n])) / (2.0 * H);
-            out[n + i] = if g.is_finite() {
-                (g / reach) as f32
-            } else {
-                0.0
-            };
         }
     }
 

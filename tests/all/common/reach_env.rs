@@ -8,6 +8,7 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use termwise::learn::{Environment, Transition};
 use termwise::sim::{ArmEnv, Scenario};
+use termwise::task::observation::{arm_obs_dim, observe_arm};
 
 /// Bonus for reaching the goal (episode ends).
 pub const GOAL_BONUS: f32 = 10.0;
@@ -62,7 +63,7 @@ impl Reach {
 
 impl Environment for Reach {
     fn obs_dim(&self) -> usize {
-        self.env.obs_dim()
+        arm_obs_dim(&self.env)
     }
     fn act_dim(&self) -> usize {
         self.limits.len()
@@ -76,14 +77,14 @@ impl Environment for Reach {
         };
         let event_seed = self.rng.gen::<u64>();
         self.env.reset(start, goal, event_seed);
-        self.env.observe(obs);
+        observe_arm(&self.env, obs);
     }
     fn step(&mut self, action: &[f32], obs: &mut [f32]) -> Transition {
         for ((p, &a), &l) in self.phys.iter_mut().zip(action).zip(&self.limits) {
             *p = a as f64 * l;
         }
         let r = self.env.step(&self.phys);
-        self.env.observe(obs);
+        observe_arm(&self.env, obs);
         let terminated = r.reached_goal;
         let reward =
             -TIME_COST - DIST_COST * r.goal_dist as f32 + if terminated { GOAL_BONUS } else { 0.0 };
