@@ -97,6 +97,72 @@ pub fn rank_order(keys: &[(usize, f64, f64)]) -> Vec<usize> {
     k.into_iter().map(|x| x.0).collect()
 }
 
+/// The two intervals of `r` against `l` at `level`: the IQM steps ratio (r / l) and the IQM success
+/// difference (r - l), each a stratified percentile bootstrap on its own stream labelled by the pair.
+fn compare(
+    l: &Ranked,
+    r: &Ranked,
+    level: f64,
+    resamples: usize,
+    seed: u64,
+) -> (Estimate, Estimate) {
+    let stream = |tag| stream_seed(seed, &[l.index as u64, r.index as u64, tag]);
+    // An empty side (no steps figure) gives no interval: the comparison rests on success alone.
+    let steps_ratio = bootstrap_distribution(
+        &[l.steps, r.steps],
+        iqm_ratio,
+        resamples,
+        stream(TAG_GROUP_STEPS),
+    )
+    .map(|(p, v)| percentile_interval(p, &v, level))
+    .unwrap_or(Estimate::NONE);
+    let success_diff = bootstrap_distribution(
+        &[l.success, r.success],
+        |x| iqm(&x[1]) - iqm(&x[0]),
+        resamples,
+        stream(TAG_GROUP_SUCCESS),
+    )
+    .map(|(p, v)| percentile_interval(p, &v, level))
+    .unwrap_or(Estimate::NONE);
+    (steps_ratio, success_diff)
+}
+
+/// Every variant against the leader (the first): group 1 when an interval at
+/// `1 - (1 - confidence) / comparisons` lies entirely on the worse side, else 0. The same intervals as
+/// `rank_groups` draws for the leader's own group, without its walk: a variant is not put behind for
+/// ranking below one that is (racing's rule, which must never stop a variant without evidence against it).
+pub fn against_leader(ranked: &[Ranked], confidence: f64, resamples: usize, seed: u64) -> Grouping {
+    let comparisons = ranked.len().saturating_sub(1).max(1);
+    let level = 1.0 - (1.0 - confidence) / comparisons as f64;
+    let Some(l) = ranked.first() else {
+        return Grouping {
+            level,
+            placed: Vec::new(),
+        };
+    };
+    let placed = ranked
+        .iter()
+        .enumerate()
+        .map(|(k, r)| {
+            let (steps_ratio, success_diff) = if k == 0 {
+                (Estimate::NONE, Estimate::NONE)
+            } else {
+                compare(l, r, level, resamples, seed)
+            };
+            let mut p = Placed {
+                index: r.index,
+                group: 0,
+                leader: l.index,
+                steps_ratio,
+                success_diff,
+            };
+            p.group = usize::from(p.slower() || p.less_success());
+            p
+        })
+        .collect();
+    Grouping { level, placed }
+}
+
 /// Rank groups of variants given best first (Dunn, "Multiple comparisons among means", JASA 1961, for
 /// the Bonferroni adjustment). Each variant is compared with the leader of the current group: it starts
 /// a new group when the stratified bootstrap interval of its steps ratio to the leader lies entirely
@@ -120,24 +186,7 @@ pub fn rank_groups(ranked: &[Ranked], confidence: f64, resamples: usize, seed: u
             });
             continue;
         };
-        let stream = |tag| stream_seed(seed, &[l.index as u64, r.index as u64, tag]);
-        // An empty side (no steps figure) gives no interval: the comparison rests on success alone.
-        let steps_ratio = bootstrap_distribution(
-            &[l.steps, r.steps],
-            iqm_ratio,
-            resamples,
-            stream(TAG_GROUP_STEPS),
-        )
-        .map(|(p, v)| percentile_interval(p, &v, level))
-        .unwrap_or(Estimate::NONE);
-        let success_diff = bootstrap_distribution(
-            &[l.success, r.success],
-            |x| iqm(&x[1]) - iqm(&x[0]),
-            resamples,
-            stream(TAG_GROUP_SUCCESS),
-        )
-        .map(|(p, v)| percentile_interval(p, &v, level))
-        .unwrap_or(Estimate::NONE);
+        let (steps_ratio, success_diff) = compare(l, r, level, resamples, seed);
         let mut p = Placed {
             index: r.index,
             group,
@@ -210,5 +259,71 @@ mod tests {
         assert_eq!(g.placed[2].leader, 0);
         // The observed difference is the IQM difference: (0.5+0.45)/2 - (0.9+0.91)/2.
         assert!((g.placed[2].success_diff.point - (0.475 - 0.905)).abs() < 1e-12);
+    }
+
+    #[test]
+    fn the_walk_puts_a_variant_behind_for_ranking_below_a_split_and_against_leader_does_not() {
+        // Three variants: `mid` overlaps both neighbours, `low` lies wholly below the leader. The walk compares
+        // `mid` with the leader (no split) and `low` with the leader (split); with `low` ranked above `mid` (by
+        // steps), the walk leaves `mid` behind `low`'s split without any interval against `mid` itself.
+        let steps_fast = [100.0, 100.0, 100.0, 100.0];
+        let steps_slow = [200.0, 200.0, 200.0, 200.0];
+        let lead = [0.9, 0.92, 0.88, 0.91];
+        let low = [0.5, 0.45, 0.55, 0.52];
+        let mid = [0.5, 0.92, 0.6, 0.9];
+        let ranked = [
+            Ranked {
+                index: 0,
+                steps: &steps_fast,
+                success: &lead,
+            },
+            Ranked {
+                index: 1,
+                steps: &steps_fast,
+                success: &low,
+            },
+            Ranked {
+                index: 2,
+                steps: &steps_slow,
+                success: &mid,
+            },
+        ];
+        let walk = rank_groups(&ranked, 0.95, 2000, 3);
+        let direct = against_leader(&ranked, 0.95, 2000, 3);
+        assert_eq!(walk.placed[1].group, 1);
+        assert_eq!(direct.placed[1].group, 1, "wholly below the leader");
+        // Same steps-ratio numbers against the leader for `low` in both (same streams, same level).
+        assert_eq!(
+            format!("{:?}", walk.placed[1]),
+            format!("{:?}", direct.placed[1])
+        );
+        // `mid`: the walk compares it with `low` (its new leader) and keeps it behind the leader's group;
+        // against the leader its steps ratio is 2 exactly (every resample), so it is behind too on steps...
+        assert!(direct.placed[2].slower());
+        // ...but with the steps equal it is not: only the walk would put it behind.
+        let ranked = [
+            Ranked {
+                index: 0,
+                steps: &steps_fast,
+                success: &lead,
+            },
+            Ranked {
+                index: 1,
+                steps: &steps_fast,
+                success: &low,
+            },
+            Ranked {
+                index: 2,
+                steps: &steps_fast,
+                success: &mid,
+            },
+        ];
+        let walk = rank_groups(&ranked, 0.95, 2000, 3);
+        let direct = against_leader(&ranked, 0.95, 2000, 3);
+        assert_eq!(walk.placed[2].group, 1, "behind by the walk");
+        assert_eq!(
+            direct.placed[2].group, 0,
+            "no interval against it puts it behind the leader"
+        );
     }
 }

@@ -1,12 +1,16 @@
-//! The racing decision at one rung: which variants are clearly behind, by the report's rank-group rule
-//! (`groups::rank_groups`) on the finished runs the rung covers — never by the point estimate alone.
+//! The racing decision at one rung: which variants are clearly behind — by the report's intervals, never by
+//! the point estimate alone. The variants are ranked as the report ranks them, and each is compared with the
+//! leader by the report's rank-group intervals (steps ratio and clean-success difference, stratified bootstrap,
+//! Bonferroni-adjusted; `groups::against_leader`); a variant stops when one of them lies entirely on the worse
+//! side. Unlike the report's walk down the ranking, a variant is not stopped merely for ranking below one that
+//! is: stopping is final, so it needs evidence against the variant itself.
 //! Successive halving keeps the promising arms and stops the rest (Jamieson & Talwalkar, "Non-stochastic
 //! best arm identification and hyperparameter optimization", AISTATS 2016; Li, Jamieson, DeSalvo,
 //! Rostamizadeh, Talwalkar, "Hyperband", JMLR 18, 2017); here the arms stop only when the data separate
 //! them from the leading group, so the number kept is not fixed in advance.
 
 use super::bootstrap::Estimate;
-use super::groups::{rank_groups, rank_order, Ranked};
+use super::groups::{against_leader, rank_order, Ranked};
 use super::load::RunResults;
 use super::metric::SUCCESS;
 use super::run_metrics::{run_metrics, RunContext};
@@ -28,11 +32,11 @@ pub struct Verdict {
     pub index: usize,
     /// False when the variant is clearly behind and stops here.
     pub kept: bool,
-    /// Rank group at this rung (0 = tied with the leader).
+    /// 0 when the intervals do not separate it from the leader, 1 when they put it behind.
     pub group: usize,
     /// Position in the rung's ranking (0 = leader).
     pub rank: usize,
-    /// The leader of the group it was compared with.
+    /// The leader it was compared with.
     pub leader: usize,
     /// IQM steps to threshold over its runs (censored at the budget).
     pub steps_iqm: f64,
@@ -54,8 +58,8 @@ pub struct Rung {
 }
 
 /// Decide a rung: rank the entrants as the report does (steps to threshold, then final clean success),
-/// group them with `rank_groups` at `confidence`, and keep the leading group. Every entrant needs finished
-/// runs (done or diverged); `seed` labels the bootstrap streams of this rung.
+/// compare each with the leader at `confidence` (Bonferroni-adjusted), and stop those the intervals put behind.
+/// Every entrant needs finished runs (done or diverged); `seed` labels the bootstrap streams of this rung.
 pub fn decide_rung(
     entrants: &[Entrant],
     ctx: &RunContext,
@@ -89,7 +93,7 @@ pub fn decide_rung(
             success: &figures[k].1,
         })
         .collect();
-    let g = rank_groups(&ranked, confidence, resamples, seed);
+    let g = against_leader(&ranked, confidence, resamples, seed);
     let verdicts = g
         .placed
         .iter()

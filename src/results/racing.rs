@@ -18,7 +18,7 @@ pub struct RacingPlan {
     pub rung_seeds: Vec<u64>,
     /// Most seeds a variant can get from reinvested budget.
     pub max_seeds: u64,
-    /// Confidence of the rank-group rule before its Bonferroni adjustment.
+    /// Confidence of the rank-group intervals before their Bonferroni adjustment.
     pub confidence: f64,
 }
 
@@ -47,9 +47,9 @@ pub struct RungEntry {
     pub variant: String,
     /// Still racing after this rung.
     pub kept: bool,
-    /// Rank group at the rung (0 = tied with the leader).
+    /// 1 when the intervals put it behind the leader, else 0.
     pub group: u64,
-    /// The leader of the group it was compared with.
+    /// The leader it was compared with.
     pub leader: String,
     /// IQM steps to threshold over the rung's seeds (censored at the budget).
     pub steps_iqm: Option<f64>,

@@ -49,8 +49,8 @@ pub fn check_text(exp: &Experiment, jobs: usize, calibrate: bool) -> Result<Stri
             .collect();
         let _ = writeln!(
             s,
-            "racing: rungs at {} of each variant's {} seeds; at each rung the variants the rank-group rule \
-             (confidence {}, Bonferroni-adjusted) puts behind the leading group stop, and their seeds go to the rest \
+            "racing: rungs at {} of each variant's {} seeds; at each rung the variants the report's rank-group intervals \
+             against the leader (confidence {}, Bonferroni-adjusted) put behind stop, and their seeds go to the rest \
              as further seeds, up to {} per variant",
             rungs.join(", "),
             exp.seeds(),

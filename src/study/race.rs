@@ -3,8 +3,8 @@
 //! Talwalkar, "Hyperband: A novel bandit-based approach to hyperparameter optimization", JMLR 18, 2017).
 //!
 //! A variant's budget is its seeds x steps, and it is spent seed by seed: rung k decides once every racing
-//! variant has finished its first `rung_seeds[k]` seeds. Variants the report's rank-group rule puts behind
-//! the leading group stop there; the seeds they no longer run go to the variants still racing as further
+//! variant has finished its first `rung_seeds[k]` seeds. Variants the report's rank-group intervals put behind
+//! the leader stop there (`analysis::race`); the seeds they no longer run go to the variants still racing as further
 //! seeds (split evenly, up to `max_seeds` each; the rest is saved). Every run is a whole run, bit-identical
 //! to the same seed of the un-raced study, so a decision depends only on finished runs: it is a pure
 //! function of the results folder, taken by whichever process needs it (this one between stages, or a

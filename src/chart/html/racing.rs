@@ -21,9 +21,7 @@ fn interval(i: &Option<Interval>, signed: bool) -> String {
     }
 }
 
-/// Why a rung stopped a variant, in words: its own interval against the leader of its rank group, or, when
-/// that leader is itself separated from the leading group and the variant ranks below it without being told
-/// apart from it, the group it fell into.
+/// Why a rung stopped a variant, in words: its interval against the leader that lies on the worse side.
 fn why(e: &RungEntry, level: f64) -> String {
     let mut reasons = Vec::new();
     if let Some(d) = e.success_diff.filter(|d| d.hi < 0.0) {
@@ -40,18 +38,10 @@ fn why(e: &RungEntry, level: f64) -> String {
             esc(&e.leader)
         ));
     }
-    if reasons.is_empty() {
-        return format!(
-            "rank group {}: it ranks below <b>{}</b>, which the data separate from the leading group (see its row), and cannot be told apart from it",
-            e.group + 1,
-            esc(&e.leader)
-        );
-    }
     format!(
-        "{} (interval at {:.1}% lies entirely on the worse side; rank group {})",
+        "{} (interval at {:.1}% lies entirely on the worse side)",
         reasons.join(" and "),
-        level * 100.0,
-        e.group + 1
+        level * 100.0
     )
 }
 
@@ -64,7 +54,7 @@ pub fn racing_section(h: &mut String, s: &StudySummary, swatch: fn(&VariantSumma
     let spent = r.planned_steps as f64 / r.unraced_steps.max(1) as f64;
     let _ = write!(
         h,
-        "<p>Racing with rungs at {} of each variant's {} seeds ({} seeds per variant), the rank-group rule at {:.0}% before its Bonferroni adjustment, and freed seeds given back up to {} per variant. ",
+        "<p>Racing with rungs at {} of each variant's {} seeds ({} seeds per variant), the report's rank-group intervals against the leader at {:.0}% before their Bonferroni adjustment, and freed seeds given back up to {} per variant. ",
         plan.rungs.iter().map(|f| f.to_string()).collect::<Vec<_>>().join(", "),
         s.study.seeds.len(),
         plan.rung_seeds.iter().map(|n| n.to_string()).collect::<Vec<_>>().join(", "),
@@ -112,11 +102,11 @@ pub fn racing_section(h: &mut String, s: &StudySummary, swatch: fn(&VariantSumma
             }
             None if r.rungs.len() == plan.rungs.len() => (
                 "<span class=tag>raced to the end</span>".into(),
-                "in the leading group at every rung".into(),
+                "not behind the leader at any rung".into(),
             ),
             None => (
                 "<span class=tag>still racing</span>".into(),
-                "in the leading group at every rung so far".into(),
+                "not behind the leader at any rung so far".into(),
             ),
         };
         let extra = rv.seeds.saturating_sub(s.study.seeds.len() as u64);
@@ -138,7 +128,7 @@ pub fn racing_section(h: &mut String, s: &StudySummary, swatch: fn(&VariantSumma
     for rung in &r.rungs {
         let _ = write!(
             h,
-            "<details><summary>Rung {} ({} seeds per variant, intervals at {:.1}%)</summary><table><tr><th>rank</th><th>variant</th><th>steps to threshold<br><span class=ci>IQM</span></th><th>final clean success<br><span class=ci>IQM</span></th><th>steps vs its leader<br><span class=ci>ratio [CI]</span></th><th>clean success vs its leader<br><span class=ci>difference [CI]</span></th><th>decision</th></tr>",
+            "<details><summary>Rung {} ({} seeds per variant, intervals at {:.1}%)</summary><table><tr><th>rank</th><th>variant</th><th>steps to threshold<br><span class=ci>IQM</span></th><th>final clean success<br><span class=ci>IQM</span></th><th>steps vs the leader<br><span class=ci>ratio [CI]</span></th><th>clean success vs the leader<br><span class=ci>difference [CI]</span></th><th>decision</th></tr>",
             rung.rung,
             rung.seeds,
             rung.level * 100.0
@@ -158,5 +148,5 @@ pub fn racing_section(h: &mut String, s: &StudySummary, swatch: fn(&VariantSumma
         }
         h.push_str("</table></details>");
     }
-    h.push_str("<p class=ci>Racing spends each variant's budget seed by seed (successive halving over seeds: Jamieson &amp; Talwalkar, AISTATS 2016; Li et al., “Hyperband”, JMLR 18, 2017). At a rung the variants are ranked and grouped by the same rule as the report's ranking, on their finished seeds; a variant outside the leading group stops. Every run is a whole run, identical to the same seed of the un-raced study. Figures elsewhere in this report use every seed each variant ran, so stopped variants rest on fewer seeds.</p></div>");
+    h.push_str("<p class=ci>Racing spends each variant's budget seed by seed (successive halving over seeds: Jamieson &amp; Talwalkar, AISTATS 2016; Li et al., “Hyperband”, JMLR 18, 2017). At a rung the variants are ranked as in the report's ranking, on their finished seeds, and each is compared with the leader by the intervals of the report's rank groups (steps ratio and clean-success difference); a variant stops when one of them lies entirely on the worse side. Every run is a whole run, identical to the same seed of the un-raced study. Figures elsewhere in this report use every seed each variant ran, so stopped variants rest on fewer seeds.</p></div>");
 }

@@ -6,7 +6,7 @@ use super::*;
 
 /// Most rungs.
 pub const MAX_RUNGS: usize = 10;
-/// Fewest seeds per variant a rung decides on: the rank-group rule's bootstrap intervals separate tied
+/// Fewest seeds per variant a rung decides on: the rank-group bootstrap intervals separate tied
 /// variants by chance far too often below this (measured on synthetic learning curves: at 3 seeds and the
 /// racing confidence, 5 tied variants are all kept in only 58% of studies, at 4 seeds in 89%).
 pub const MIN_RUNG_SEEDS: u64 = 4;
@@ -21,7 +21,7 @@ pub struct RacingSettings {
     /// Most seeds per variant once the budget of stopped variants is given to the rest. Default: twice
     /// `study.seeds` (at most `MAX_SEEDS`); `study.seeds` gives nothing back, so the budget is saved.
     pub max_seeds: Option<i64>,
-    /// Confidence of the rank-group rule at a rung, before its Bonferroni adjustment. Default 0.99,
+    /// Confidence of the rank-group intervals at a rung, before their Bonferroni adjustment. Default 0.99,
     /// stricter than the report's 0.95 because stopping is final (see README, "Racing").
     #[serde(default = "default_confidence")]
     pub confidence: f64,
