@@ -56,7 +56,7 @@ pub fn probes_stale(exp: &Experiment, r: &RunSpec) -> Result<bool, StudyError> {
     Ok(!exp.probes.iter().all(|p| {
         let def = &p.per_variant[r.variant].1;
         rows.iter()
-            .any(|x| &x.probe == p.name.as_str() && &x.definition == def)
+            .any(|x| x.probe == p.name && &x.definition == def)
     }))
 }
 
