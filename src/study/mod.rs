@@ -422,8 +422,9 @@ pub fn cli_run(
             .map(|(v, k)| format!("{v} (rung {k})"))
             .collect();
         text.push_str(&format!(
-            "\ntermwise: racing stopped {} variants: {}; racing.json and the report say why",
+            "\ntermwise: racing stopped {} variant{}: {}; racing.json and the report say why",
             list.len(),
+            if list.len() == 1 { "" } else { "s" },
             list.join(", ")
         ));
     }

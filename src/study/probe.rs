@@ -177,6 +177,13 @@ pub fn probe_study(
             outcome.current += 1;
         }
     }
+    if todo.is_empty() && outcome.current == 0 {
+        return Err(StudyError::Mismatch(format!(
+            "{}: no finished run here to probe (a published study holds only its summary and report; give the \
+             folder the study ran in)",
+            out.display()
+        )));
+    }
     super::layout::write_study_json(out, exp)?;
     let next = AtomicUsize::new(0);
     let done = Mutex::new((0usize, 0usize, 0usize));

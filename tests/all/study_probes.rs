@@ -229,6 +229,27 @@ fn probes_are_added_to_a_finished_study_without_retraining() {
     let study: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(late.join("study.json")).unwrap()).unwrap();
     assert_eq!(study["probes"].as_array().unwrap().len(), 7);
+    // A published folder (study.json without run folders) has nothing to probe: refused, nothing rewritten.
+    let published = d.join("published");
+    std::fs::create_dir_all(&published).unwrap();
+    std::fs::copy(late.join("study.json"), published.join("study.json")).unwrap();
+    let before = std::fs::read(published.join("study.json")).unwrap();
+    let o = bin()
+        .args([
+            "probe",
+            published.to_str().unwrap(),
+            probed.to_str().unwrap(),
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(
+        o.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(String::from_utf8_lossy(&o.stderr).contains("no finished run here to probe"));
+    assert_eq!(std::fs::read(published.join("study.json")).unwrap(), before);
     // A probe file for another study is refused before anything is evaluated.
     let other = d.join("other.toml");
     let t = std::fs::read_to_string(&probed)
