@@ -3,7 +3,9 @@
 //! it in `task::metrics`, and its entry in `analysis::metric::METRICS` (what the summary, tables, report and
 //! charts make of it; a test there fails until the entry exists).
 
-use super::{csv_buffer, csv_error, display_f64, finish_csv, ResultsError, EVALUATIONS_FILE};
+use super::{
+    display_f64, header_of, not_recorded, read_rows, write_rows, ResultsError, EVALUATIONS_FILE,
+};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
@@ -57,69 +59,38 @@ pub struct EvalRow {
     /// Curriculum difficulty in [0, 1].
     #[serde(serialize_with = "display_f64")]
     pub curriculum_level: f64,
+    /// Fraction of an episode's reference paths that touch an obstacle, mean over episodes, in [0, 1]. Absent
+    /// from files written before the column existed (read as NaN: not recorded).
+    #[serde(serialize_with = "display_f64", default = "not_recorded")]
+    pub reference_collisions: f64,
 }
+
+/// Columns added after the first published format, newest last: a file may lack a suffix of them.
+const ADDED_COLUMNS: &[&str] = &["reference_collisions"];
 
 /// The header of evaluations.csv, from the field names of `EvalRow`.
 pub fn evaluation_columns() -> Vec<String> {
-    let mut w = csv::WriterBuilder::new()
-        .has_headers(true)
-        .from_writer(Vec::new());
-    // Serialising one row makes the csv crate emit the header from the field names first.
-    let header = w
-        .serialize(EvalRow::default())
-        .ok()
-        .and_then(|_| w.into_inner().ok())
-        .unwrap_or_default();
-    let text = String::from_utf8_lossy(&header);
-    text.lines()
-        .next()
-        .unwrap_or("")
-        .split(',')
-        .map(str::to_string)
-        .collect()
+    header_of::<EvalRow>()
 }
 
 /// Write evaluations.csv (header, then one row per evaluation).
 pub fn write_evaluations(dir: &Path, rows: &[EvalRow]) -> Result<(), ResultsError> {
-    let p = dir.join(EVALUATIONS_FILE);
-    let mut w = csv_buffer();
-    w.write_record(evaluation_columns())
-        .map_err(csv_error(&p))?;
-    for r in rows {
-        w.serialize(r).map_err(csv_error(&p))?;
-    }
-    finish_csv(&p, w)
+    write_rows(&dir.join(EVALUATIONS_FILE), rows)
 }
 
-/// Read evaluations.csv, checking the header is exactly the format's.
+/// Read evaluations.csv, checking the header is exactly the format's, or an earlier one lacking some of the
+/// newest columns (`ADDED_COLUMNS`; those read as NaN).
 pub fn read_evaluations(path: &Path) -> Result<Vec<EvalRow>, ResultsError> {
-    let mut reader = csv::Reader::from_path(path).map_err(csv_error(path))?;
-    let header: Vec<String> = reader
-        .headers()
-        .map_err(csv_error(path))?
-        .iter()
-        .map(str::to_string)
-        .collect();
-    let expected = evaluation_columns();
-    if header != expected {
-        return Err(ResultsError::BadHeader {
-            path: path.to_path_buf(),
-            expected: expected.join(","),
-            found: header.join(","),
-        });
-    }
-    reader
-        .deserialize()
-        .collect::<Result<Vec<EvalRow>, _>>()
-        .map_err(csv_error(path))
+    read_rows(path, ADDED_COLUMNS)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
 
-    /// The header every published results folder carries (results/quickstart), written out by hand.
-    const PUBLISHED: &str = "env_steps,clean_success_rate,reached_rate,collision_rate,mean_return,time_to_goal,episode_steps,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks,curriculum_level";
+    /// The header of evaluations.csv written out by hand (the published folders before `reference_collisions`
+    /// lack its last column).
+    const PUBLISHED: &str = "env_steps,clean_success_rate,reached_rate,collision_rate,mean_return,time_to_goal,episode_steps,rms_joint_acc,peak_joint_acc,rms_jerk,path_length,min_clearance,path_deviation,replans,planner_fallbacks,curriculum_level,reference_collisions";
 
     #[test]
     fn header_is_the_published_one() {
@@ -146,13 +117,34 @@ mod tests {
         let line = text.lines().nth(1).unwrap();
         assert_eq!(
             line,
-            "4096,1,0.30000000000000004,0,0,NaN,0,0.0000001,0,0,0,-0,0,0,0,inf"
+            "4096,1,0.30000000000000004,0,0,NaN,0,0.0000001,0,0,0,-0,0,0,0,inf,0"
         );
         let back = read_evaluations(&dir.join(EVALUATIONS_FILE)).unwrap();
         assert_eq!(back.len(), 1);
         assert!(back[0].time_to_goal.is_nan());
         assert_eq!(back[0].reached_rate.to_bits(), row.reached_rate.to_bits());
         assert_eq!(back[0].min_clearance.to_bits(), (-0.0f64).to_bits());
+        let _ = std::fs::remove_dir_all(&dir);
+    }
+
+    #[test]
+    fn a_file_without_the_newest_column_reads_it_as_not_recorded() {
+        let dir = std::env::temp_dir().join(format!("termwise-evalold-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let p = dir.join(EVALUATIONS_FILE);
+        let old = PUBLISHED.trim_end_matches(",reference_collisions");
+        std::fs::write(
+            &p,
+            format!("{old}\n4096,0.5,1,0,2,1.5,100,3,4,5,0.6,0.01,0.02,1,0,1\n"),
+        )
+        .unwrap();
+        let rows = read_evaluations(&p).unwrap();
+        assert_eq!(rows[0].success_rate, 0.5);
+        assert_eq!(rows[0].curriculum_level, 1.0);
+        assert!(rows[0].reference_collisions.is_nan());
+        // Any other header is refused.
+        std::fs::write(&p, "env_steps,clean_success_rate\n1,0\n").unwrap();
+        assert!(read_evaluations(&p).is_err());
         let _ = std::fs::remove_dir_all(&dir);
     }
 }

@@ -172,6 +172,77 @@ pub(crate) fn finish_csv(path: &Path, w: csv::Writer<Vec<u8>>) -> Result<(), Res
     write_file(path, &bytes)
 }
 
+/// The header of a table of `T` rows: the field names (serde renames included), as the csv crate writes them
+/// before the first serialised row.
+pub(crate) fn header_of<T: serde::Serialize + Default>() -> Vec<String> {
+    let mut w = csv::WriterBuilder::new()
+        .has_headers(true)
+        .from_writer(Vec::new());
+    let header = w
+        .serialize(T::default())
+        .ok()
+        .and_then(|_| w.into_inner().ok())
+        .unwrap_or_default();
+    let text = String::from_utf8_lossy(&header);
+    text.lines()
+        .next()
+        .unwrap_or("")
+        .split(',')
+        .map(str::to_string)
+        .collect()
+}
+
+/// Write a table of `T` rows (header from `header_of`) to `path` atomically.
+pub(crate) fn write_rows<T: serde::Serialize + Default>(
+    path: &Path,
+    rows: &[T],
+) -> Result<(), ResultsError> {
+    let mut w = csv_buffer();
+    w.write_record(header_of::<T>()).map_err(csv_error(path))?;
+    for r in rows {
+        w.serialize(r).map_err(csv_error(path))?;
+    }
+    finish_csv(path, w)
+}
+
+/// Read a table of `T` rows, checking its header is exactly `header_of::<T>()`, or an earlier format's that
+/// lacks the newest columns `added` (a suffix of the header, oldest first; their fields must have serde
+/// defaults).
+pub(crate) fn read_rows<T: serde::de::DeserializeOwned + serde::Serialize + Default>(
+    path: &Path,
+    added: &[&str],
+) -> Result<Vec<T>, ResultsError> {
+    let mut reader = csv::Reader::from_path(path).map_err(csv_error(path))?;
+    let header: Vec<String> = reader
+        .headers()
+        .map_err(csv_error(path))?
+        .iter()
+        .map(str::to_string)
+        .collect();
+    let expected = header_of::<T>();
+    let earlier = (1..=added.len()).any(|k| {
+        expected.len() >= k
+            && header.as_slice() == &expected[..expected.len() - k]
+            && expected[expected.len() - k..] == added[added.len() - k..]
+    });
+    if header != expected && !earlier {
+        return Err(ResultsError::BadHeader {
+            path: path.to_path_buf(),
+            expected: expected.join(","),
+            found: header.join(","),
+        });
+    }
+    reader
+        .deserialize()
+        .collect::<Result<Vec<T>, _>>()
+        .map_err(csv_error(path))
+}
+
+/// The value of a column a file written before the column existed does not have: NaN, not recorded.
+pub(crate) fn not_recorded() -> f64 {
+    f64::NAN
+}
+
 /// Serialise an `f64` with Rust's `Display` (shortest text that reads back to the same bits, `NaN`, `inf`),
 /// the format every results table has used; the `csv` crate's own float format differs (`1.0` for `1`).
 pub(crate) fn display_f64<S: serde::Serializer>(x: &f64, s: S) -> Result<S::Ok, S::Error> {

@@ -2,7 +2,7 @@
 //! after training, written and read through serde like evaluations.csv. The header is the struct's field
 //! names. study.json lists the probes (`ProbeRecord`) so the report can be drawn from the folder alone.
 
-use super::{csv_buffer, csv_error, display_f64, finish_csv, ResultsError};
+use super::{display_f64, header_of, not_recorded, read_rows, write_rows, ResultsError};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
@@ -62,63 +62,33 @@ pub struct ProbeRow {
     /// Replans per episode.
     #[serde(serialize_with = "display_f64")]
     pub replans: f64,
+    /// Fraction of an episode's reference paths that touch an obstacle, mean over episodes (NaN in files
+    /// written before the column existed).
+    #[serde(serialize_with = "display_f64", default = "not_recorded")]
+    pub reference_collisions: f64,
 }
+
+/// Columns added after the first format of probes.csv, newest last (a file may lack a suffix of them).
+const ADDED_COLUMNS: &[&str] = &["reference_collisions"];
 
 /// The header of probes.csv, from the field names of `ProbeRow`.
 pub fn probe_columns() -> Vec<String> {
-    let mut w = csv::WriterBuilder::new()
-        .has_headers(true)
-        .from_writer(Vec::new());
-    let header = w
-        .serialize(ProbeRow::default())
-        .ok()
-        .and_then(|_| w.into_inner().ok())
-        .unwrap_or_default();
-    let text = String::from_utf8_lossy(&header);
-    text.lines()
-        .next()
-        .unwrap_or("")
-        .split(',')
-        .map(str::to_string)
-        .collect()
+    header_of::<ProbeRow>()
 }
 
 /// Write probes.csv into the run folder `dir`.
 pub fn write_probes(dir: &Path, rows: &[ProbeRow]) -> Result<(), ResultsError> {
-    let p = dir.join(PROBES_FILE);
-    let mut w = csv_buffer();
-    w.write_record(probe_columns()).map_err(csv_error(&p))?;
-    for r in rows {
-        w.serialize(r).map_err(csv_error(&p))?;
-    }
-    finish_csv(&p, w)
+    write_rows(&dir.join(PROBES_FILE), rows)
 }
 
-/// Read a run folder's probes.csv; no file gives no rows.
+/// Read a run folder's probes.csv; no file gives no rows. A file from before `reference_collisions` reads it
+/// as NaN.
 pub fn read_probes(dir: &Path) -> Result<Vec<ProbeRow>, ResultsError> {
     let path = dir.join(PROBES_FILE);
     if !path.is_file() {
         return Ok(Vec::new());
     }
-    let mut reader = csv::Reader::from_path(&path).map_err(csv_error(&path))?;
-    let header: Vec<String> = reader
-        .headers()
-        .map_err(csv_error(&path))?
-        .iter()
-        .map(str::to_string)
-        .collect();
-    let expected = probe_columns();
-    if header != expected {
-        return Err(ResultsError::BadHeader {
-            path: path.clone(),
-            expected: expected.join(","),
-            found: header.join(","),
-        });
-    }
-    reader
-        .deserialize()
-        .collect::<Result<Vec<ProbeRow>, _>>()
-        .map_err(csv_error(&path))
+    read_rows(&path, ADDED_COLUMNS)
 }
 
 #[cfg(test)]
@@ -130,7 +100,8 @@ mod tests {
         assert_eq!(
             probe_columns().join(","),
             "probe,definition,episodes_digest,env_steps,episodes,clean_success_rate,reached_rate,\
-             collision_rate,mean_return,time_to_goal,episode_steps,rms_joint_acc,min_clearance,replans"
+             collision_rate,mean_return,time_to_goal,episode_steps,rms_joint_acc,min_clearance,replans,\
+             reference_collisions"
         );
         let dir = std::env::temp_dir().join(format!("termwise-probes-{}", std::process::id()));
         std::fs::create_dir_all(&dir).unwrap();

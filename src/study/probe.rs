@@ -38,6 +38,7 @@ fn row(p: &ProbeSpec, definition: &str, o: &ProbeOutcome, env_steps: u64) -> Pro
         rms_joint_acc: s.rms_joint_acc,
         min_clearance: s.min_clearance,
         replans: s.replans,
+        reference_collisions: s.reference_collisions,
     }
 }
 
@@ -83,6 +84,7 @@ pub fn probe_run(exp: &Experiment, r: &RunSpec) -> Result<usize, StudyError> {
             &v.plan,
             v.learner.gamma,
             &v.observation,
+            &v.waypoints,
         );
         let cond = condition(p);
         let seed = exp.study.eval_seed;

@@ -13,6 +13,7 @@ impl VariantSpec {
             &self.plan,
             self.learner.gamma,
             &self.observation,
+            &self.waypoints,
         )
     }
 

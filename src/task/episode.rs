@@ -5,9 +5,11 @@ use super::metrics::{Accum, EpisodeMetrics};
 use super::observation::{
     arm_obs_dim, clearance_obs_dim, observe_arm, observe_clearance, ObservationSpec,
 };
+use super::waypoints::WaypointSource;
 use crate::curriculum::EpisodeDraw;
 use crate::plan::connectivity::ConnectivityGrid;
-use crate::plan::{plan_path, PlanSpec, ReferencePath};
+
+use crate::plan::{path_collides, plan_path, PlanSpec, ReferencePath};
 use crate::reward::{Composer, RewardSpec};
 use crate::sim::{ArmEnv, ArmState, Scenario, Shape, StepReport, MAX_JOINTS};
 use rand::{Rng, SeedableRng};
@@ -54,6 +56,14 @@ pub struct Episode {
     /// What the policy observes beyond the arm's part of the observation.
     obs: ObservationSpec,
     plan_rng: ChaCha8Rng,
+    /// Where the waypoints come from, and how they are degraded.
+    source: WaypointSource,
+    /// Draws of the waypoint noise (seeded with the plan's seed, so the planner's own draws are unchanged).
+    noise_rng: ChaCha8Rng,
+    /// A scenario event happened since the reference was last renewed.
+    pending: bool,
+    /// Time the reference was last renewed, s.
+    renewed_at: f64,
     /// Joint-space connectivity of the obstacle layouts episodes began with (two-link arms; curricula may
     /// vary the obstacle count, so a few layouts are kept).
     grids: Vec<(Vec<Shape>, Option<ConnectivityGrid>)>,
@@ -66,6 +76,7 @@ impl Episode {
         plan: &PlanSpec,
         gamma: f64,
         obs: &ObservationSpec,
+        source: &WaypointSource,
     ) -> Episode {
         let sim = ArmEnv::new(scenario);
         let prev = sim.last_report();
@@ -85,6 +96,10 @@ impl Episode {
             acc: Accum::default(),
             obs: obs.clone(),
             plan_rng: ChaCha8Rng::seed_from_u64(n as u64),
+            source: source.clone(),
+            noise_rng: ChaCha8Rng::seed_from_u64(n as u64),
+            pending: false,
+            renewed_at: 0.0,
             grids: Vec::new(),
         }
     }
@@ -121,7 +136,7 @@ impl Episode {
     /// is, solvable or not (see `begin_feasible`).
     pub fn begin(&mut self, d: &EpisodeDraw, rng: &mut ChaCha8Rng) {
         self.sim.set_difficulty(d.obstacles, d.jump_rate);
-        self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
+        self.seed_plans(rng.gen());
         let path = plan_path(
             &self.sim,
             &d.start.q[..self.sim.n()],
@@ -149,7 +164,7 @@ impl Episode {
         loop {
             let d = draw(&self.sim, rng);
             self.sim.set_difficulty(d.obstacles, d.jump_rate);
-            self.plan_rng = ChaCha8Rng::seed_from_u64(rng.gen());
+            self.seed_plans(rng.gen());
             // A start closer to contact than twice the margin would make the planner lower its margin for
             // the whole reference path, and the episode would begin all but touching an obstacle.
             let start_clear = self.sim.clearances(&d.start.q[..n]).0;
@@ -182,6 +197,12 @@ impl Episode {
             }
             redraws.redraws += 1;
         }
+    }
+
+    /// Seed the planner's draws and the waypoint noise's for one episode.
+    fn seed_plans(&mut self, seed: u64) {
+        self.plan_rng = ChaCha8Rng::seed_from_u64(seed);
+        self.noise_rng = ChaCha8Rng::seed_from_u64(seed ^ 0x0A15_E5EE_D000_0001);
     }
 
     /// False when the joint-space grid (two-link arms) shows the draw's start and goal in different free
@@ -220,9 +241,62 @@ impl Episode {
             fallbacks: path.fallback as usize,
             ..Accum::default()
         };
-        self.path = path;
+        // A learned source replaces the planner's path (planned anyway: it decides whether the draw is
+        // solvable, and keeps every source's episodes the same).
+        let path = match &self.source.model {
+            Some(m) => m.predict(&self.sim, &first.q[..self.sim.n()], first.goal),
+            None => path,
+        };
+        self.pending = false;
+        self.renewed_at = first.t;
+        self.hand_over(path);
         self.composer.reset(&first, Some(&self.path));
         self.prev = first;
+    }
+
+    /// Make `path` (degraded as the source says) the episode's reference, and count whether it touches an
+    /// obstacle.
+    fn hand_over(&mut self, path: ReferencePath) {
+        let path = self.source.degrade(&self.sim, path, &mut self.noise_rng);
+        self.acc.references += 1;
+        self.acc.colliding_references += path_collides(&self.sim, &path) as usize;
+        self.path = path;
+    }
+
+    /// Renew the reference after control step `now` when the source says it is due: the planner from the
+    /// arm's configuration (after events, as `refresh` allows), or the learned model (every `every` steps and
+    /// after events).
+    fn renew(&mut self, now: &StepReport) {
+        let n = self.sim.n();
+        self.pending |= now.goal_jumped || now.obstacle_moved;
+        if !self
+            .source
+            .due(self.pending, now.steps, now.t, self.renewed_at)
+        {
+            return;
+        }
+        let path = match &self.source.model {
+            Some(m) => m.predict(&self.sim, &now.q[..n], now.goal),
+            None => {
+                let path = plan_path(
+                    &self.sim,
+                    &now.q[..n],
+                    now.goal,
+                    &self.plan,
+                    &mut self.plan_rng,
+                );
+                self.acc.fallbacks += path.fallback as usize;
+                path
+            }
+        };
+        if self.pending {
+            self.acc.replans += 1;
+        }
+        self.pending = false;
+        self.renewed_at = now.t;
+        self.hand_over(path);
+        self.sim.mark_planned();
+        self.composer.set_path(Some(&self.path));
     }
 
     /// Apply a normalised action in [-1, 1]^n; returns the report, the reward and whether the episode is terminal.
@@ -233,20 +307,7 @@ impl Episode {
             u[i] = action[i].clamp(-1.0, 1.0) as f64 * self.sim.action_limits()[i];
         }
         let now = self.sim.step(&u[..n]);
-        if now.goal_jumped || now.obstacle_moved {
-            let path = plan_path(
-                &self.sim,
-                &now.q[..n],
-                now.goal,
-                &self.plan,
-                &mut self.plan_rng,
-            );
-            self.acc.replans += 1;
-            self.acc.fallbacks += path.fallback as usize;
-            self.path = path;
-            self.sim.mark_planned();
-            self.composer.set_path(Some(&self.path));
-        }
+        self.renew(&now);
         let r = self.composer.step(&self.prev, &now);
         let terminal = self.composer.ends_episode(&now);
         let deviation = self.path.polyline().project(now.ee).distance;

@@ -45,6 +45,9 @@ pub struct EpisodeMetrics {
     pub replans: usize,
     /// Plans that fell back to the straight line.
     pub fallbacks: usize,
+    /// Fraction of the reference paths handed to the episode (at the start and at every renewal) whose
+    /// joint-space polyline touches an obstacle (`plan::learned::path_collides`).
+    pub reference_collisions: f64,
 }
 
 /// Running sums for `EpisodeMetrics` (no allocation per step).
@@ -62,6 +65,9 @@ pub(crate) struct Accum {
     pub(crate) ret: f64,
     pub(crate) replans: usize,
     pub(crate) fallbacks: usize,
+    /// Reference paths handed over, and how many of them touch an obstacle.
+    pub(crate) references: usize,
+    pub(crate) colliding_references: usize,
     pub(crate) collided: bool,
     pub(crate) time_to_goal: Option<f64>,
 }
@@ -117,6 +123,7 @@ impl Accum {
             path_deviation: self.sum_dev / steps,
             replans: self.replans,
             fallbacks: self.fallbacks,
+            reference_collisions: self.colliding_references as f64 / self.references.max(1) as f64,
         }
     }
 }
@@ -142,6 +149,8 @@ pub struct EvalSummary {
     pub path_deviation: f64,
     pub replans: f64,
     pub planner_fallbacks: f64,
+    /// Mean over episodes of the fraction of their reference paths that touch an obstacle.
+    pub reference_collisions: f64,
     pub terms: Vec<f64>,
 }
 
@@ -174,6 +183,7 @@ impl EvalSummary {
             path_deviation: mean(&|e| e.path_deviation),
             replans: mean(&|e| e.replans as f64),
             planner_fallbacks: mean(&|e| e.fallbacks as f64),
+            reference_collisions: mean(&|e| e.reference_collisions),
             terms: (0..n_terms).map(|k| mean(&|e| e.terms[k])).collect(),
         }
     }
@@ -198,6 +208,7 @@ impl EvalSummary {
             path_deviation: self.path_deviation,
             replans: self.replans,
             planner_fallbacks: self.planner_fallbacks,
+            reference_collisions: self.reference_collisions,
             curriculum_level: level,
         }
     }

@@ -10,6 +10,7 @@ pub mod metrics;
 pub mod observation;
 pub mod probe;
 pub mod trajectory;
+pub mod waypoints;
 
 pub use env::{RunShared, TaskEnv};
 pub use episode::{feasibility_spec, Episode, Redraws, MAX_REDRAWS, START_CLEARANCE_FACTOR};

@@ -110,7 +110,7 @@ fn episode_fingerprint(h: u64, ep: &Episode, noise: &ChaCha8Rng) -> u64 {
 
 /// Standard normal draw by the Box-Muller transform (Box & Muller, "A note on the generation of random
 /// normal deviates", Ann. Math. Statist. 1958).
-fn normal(rng: &mut ChaCha8Rng) -> f64 {
+pub(crate) fn normal(rng: &mut ChaCha8Rng) -> f64 {
     let u1: f64 = 1.0 - rng.gen::<f64>();
     let u2: f64 = rng.gen::<f64>();
     (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()

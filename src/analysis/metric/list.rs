@@ -249,6 +249,20 @@ pub const METRICS: &[Metric] = &[
         ..Metric::ON_DISK
     },
     Metric {
+        column: "reference_collisions",
+        value: |r| r.reference_collisions,
+        name: "reference paths touching an obstacle",
+        head: "waypoints in collision",
+        unit: "fraction of an episode's reference paths",
+        better: Better::Lower,
+        last: Some(Final {
+            key: "reference_collisions",
+            stream: 23,
+            diverged: None,
+        }),
+        ..Metric::ON_DISK
+    },
+    Metric {
         column: "curriculum_level",
         value: |r| r.curriculum_level,
         name: "curriculum difficulty",

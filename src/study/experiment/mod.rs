@@ -102,6 +102,8 @@ pub struct VariantSpec {
     pub curriculum: CurriculumSpec,
     pub learner: PpoConfig,
     pub observation: ObservationSpec,
+    /// Where the episode's waypoints come from (`[waypoints]`), with a learned model loaded.
+    pub waypoints: crate::task::waypoints::WaypointSource,
     /// Baseline controller settings (used when kind = baseline).
     pub baseline: crate::control::BaselineSpec,
     /// Keys changed relative to the base.
@@ -171,6 +173,7 @@ const VARIANT_SECTIONS: &[&str] = &[
     "learner",
     "observation",
     "baseline",
+    "waypoints",
 ];
 
 /// FNV-1a 64-bit hash (stable across platforms and releases), as 16 hex digits.

@@ -21,6 +21,8 @@ pub(super) struct RawExperiment {
     #[serde(default)]
     baseline: Option<Table>,
     #[serde(default)]
+    waypoints: Option<Table>,
+    #[serde(default)]
     generate: Option<GenerateSpec>,
     #[serde(default)]
     variant: Vec<Table>,
@@ -141,6 +143,11 @@ pub fn parse(src: &str, path: &Path) -> Result<Experiment, ConfigError> {
         base.insert(k.into(), Value::Table(v.clone().unwrap_or_default()));
     }
     base.insert("reward".into(), Value::Table(raw.reward.clone()));
+    // Only when given: a base without it keeps the merged text (and so the run hashes) it had before the
+    // section existed.
+    if let Some(w) = &raw.waypoints {
+        base.insert("waypoints".into(), Value::Table(w.clone()));
+    }
 
     // Variant override tables, explicit then generated.
     let mut overrides: Vec<Override> = Vec::new();

@@ -78,6 +78,12 @@ pub(super) fn validate_variant(
         parse_toml(&typed("baseline")?, o).map_err(|e| sub("baseline", e))?;
     baseline.validate(o, src).map_err(relabel)?;
     baseline.check_joints(sc.n(), o, src).map_err(relabel)?;
+    let waypoints: crate::task::waypoints::WaypointSpec =
+        parse_toml(&typed("waypoints")?, o).map_err(|e| sub("waypoints", e))?;
+    let base = Path::new(o).parent().unwrap_or(Path::new("."));
+    let waypoints = waypoints
+        .resolve(&sc, &plan, base, o, src)
+        .map_err(relabel)?;
     let merged_text =
         toml::to_string(merged).map_err(|e| ConfigError::at(o, src, "", e.to_string()))?;
     Ok(VariantSpec {
@@ -90,6 +96,7 @@ pub(super) fn validate_variant(
         learner,
         observation,
         baseline,
+        waypoints,
         changes: Vec::new(),
         grid: None,
         merged: merged_text,
