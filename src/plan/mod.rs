@@ -20,6 +20,7 @@ pub mod connectivity;
 pub mod draw;
 pub mod grid_index;
 pub mod ik;
+pub mod learned;
 pub mod path;
 pub mod planner;
 pub mod rrt_star;

@@ -28,3 +28,4 @@ mod study_probes;
 mod study_racing;
 mod study_slurm;
 mod task_feasible;
+mod waypoint_model;
