@@ -15,6 +15,7 @@ pub mod simulate;
 pub mod slurm;
 pub mod status;
 pub mod terms;
+pub mod waypoint_model;
 
 use crate::error_chain::error_chain_text;
 use clap::{Parser, Subcommand};
@@ -85,6 +86,14 @@ pub enum Command {
     /// effector path and the waypoints) and FILE.csv beside it (header `k,q1..qN,x,y`, one row per waypoint,
     /// angles in rad, positions in m). Planner settings: the `[plan]` table of --spec (see `PlanSpec`).
     Plan(plan::PlanCmdArgs),
+    /// Build a learned waypoint model for a variant of an experiment: a data set of planner solutions over
+    /// random episodes of its scenario, a small network trained to imitate them, and its quality on held-out
+    /// episodes (waypoint error, collisions, time per query vs per plan).
+    ///
+    /// DIR (--out) receives dataset.csv, dataset.json (provenance), model.safetensors, model.json and
+    /// quality.json. A rerun reuses the data set and the model when their inputs are unchanged; the quality
+    /// report is always redone. With --model, an existing model is assessed on the variant instead.
+    WaypointModel(waypoint_model::WaypointModelArgs),
 }
 
 /// Exit code of a command stopped by Ctrl-C (128 + SIGINT, as shells report it).
@@ -130,7 +139,8 @@ classified!(
     crate::chart::ChartError,
     crate::replay::ReplayError,
     crate::sim::simulate::SimulateError,
-    crate::plan::command::PlanCommandError
+    crate::plan::command::PlanCommandError,
+    crate::plan::learned::LearnedError
 );
 
 impl Failure {
@@ -178,6 +188,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Command::Curricula => curricula::run(),
         Command::Planners => planners::run(),
         Command::Plan(a) => plan::run(a),
+        Command::WaypointModel(a) => waypoint_model::run(a),
     };
     outcome.unwrap_or_else(|f| print_failure(&f))
 }

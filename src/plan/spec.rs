@@ -3,10 +3,10 @@
 
 use super::{planner_by_name, PLANNERS};
 use crate::config::{parse_toml, ConfigError};
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 
 /// Reference-path planner settings. Every field has a default; unknown keys are errors.
-#[derive(Clone, Debug, PartialEq, Deserialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct PlanSpec {
     /// Planner name from the registry: "rrt-star" or "bi-rrt-star". Default "bi-rrt-star".

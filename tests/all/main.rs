@@ -28,4 +28,5 @@ mod study_probes;
 mod study_racing;
 mod study_slurm;
 mod task_feasible;
+mod waypoint_model;
 mod waypoint_sources;
