@@ -29,6 +29,7 @@ pub mod space;
 pub mod spec;
 pub mod tree;
 
+pub use learned::path_collides;
 pub use path::{Polyline, Projection, ReferencePath};
 pub use planner::{Budget, Planner, Problem, Search};
 pub use space::{ArmSpace, ConfigSpace, DiscPlane};
@@ -120,25 +121,6 @@ pub fn plan_path(
     rng: &mut ChaCha8Rng,
 ) -> ReferencePath {
     plan_detailed(env, start_q, goal, spec, rng, false).path
-}
-
-/// Whether the joint-space polyline through `path.joints` brings the arm within `MIN_MARGIN` (0.1 mm) of
-/// contact with an obstacle, the workspace boundary or (when enabled) itself, or out of its joint bounds: the
-/// planner's own checks (`ArmSpace::config_free` and the conservative-advancement `edge_free`) at the smallest
-/// margin they work with. A reference path the planner found is never in collision; a fallback, a learned
-/// or a degraded one may be.
-pub fn path_collides(env: &ArmEnv, path: &ReferencePath) -> bool {
-    let space = ArmSpace::new(env, MIN_MARGIN);
-    match path.joints.first() {
-        None => false,
-        Some(q0) => {
-            !space.config_free(q0)
-                || path
-                    .joints
-                    .windows(2)
-                    .any(|w| !space.edge_free(&w[0], &w[1]))
-        }
-    }
 }
 
 /// Replan from the environment's current state to its current goal (after `StepReport::goal_jumped` or
