@@ -194,38 +194,3 @@ fn bad_waypoint_settings_are_refused_with_the_key_named() {
         assert!(e.contains(key), "{extra}: {e}");
     }
 }
-
-#[test]
-fn a_reference_path_through_an_obstacle_is_found_by_the_planners_checks() {
-    use termwise::plan::path_collides;
-    use termwise::sim::{ArmEnv, Scenario};
-    // The two-link scene: links 0.42 + 0.33 m (radii 0.035, 0.03), a disc of radius 0.09 at (0.5, -0.2).
-    // Worked by hand for a straight arm (q2 = 0) at angle a: the disc centre's distance from the arm's line is
-    // |0.5 sin a + 0.2 cos a|. At a = -1.5 it is 0.484 m and at a = -1.2 0.394 m, and it shrinks monotonically
-    // towards a = atan2(-0.2, 0.5) = -0.381, where the line passes through the centre (0.539 m from the base,
-    // within the 0.75 m reach). So sweeping from -1.5 to -1.2 stays clear, and sweeping from -1.5 to 1.2 passes
-    // through the disc although both ends are clear (1.2: the other disc, radius 0.08 at (0.05, 0.55), lies
-    // |0.05 sin 1.2 - 0.55 cos 1.2| = 0.153 m from the line, more than 0.08 + 0.035).
-    let sc = Scenario::load(Path::new("experiments/scenarios/table-2link-2obs.toml")).unwrap();
-    let env = ArmEnv::new(std::sync::Arc::new(sc));
-    let path = |qs: &[[f64; 2]]| ReferencePath {
-        joints: qs
-            .iter()
-            .map(|q| {
-                let mut j = [0.0; termwise::sim::MAX_JOINTS];
-                j[..2].copy_from_slice(q);
-                j
-            })
-            .collect(),
-        points: qs.iter().map(|_| [0.0, 0.0]).collect(),
-        fallback: false,
-    };
-    assert!(!path_collides(&env, &path(&[[-1.5, 0.0], [-1.2, 0.0]])));
-    assert!(!path_collides(&env, &path(&[[1.2, 0.0]])));
-    assert!(path_collides(&env, &path(&[[-1.5, 0.0], [1.2, 0.0]])));
-    // A waypoint itself inside the disc.
-    assert!(path_collides(
-        &env,
-        &path(&[[-1.5, 0.0], [-0.381, 0.0], [-1.5, 0.0]])
-    ));
-}

@@ -122,7 +122,14 @@ impl DataSet {
                     scenario.clone()
                 };
                 ds.scenes.push(sc.clone());
-                ep = Some(Episode::new(sc, &reward, plan, 0.99, &obs, &Default::default()));
+                ep = Some(Episode::new(
+                    sc,
+                    &reward,
+                    plan,
+                    0.99,
+                    &obs,
+                    &Default::default(),
+                ));
             }
             let ep = ep.as_mut().expect("episode built above");
             let scene = ds.scenes.len() - 1;
