@@ -3,6 +3,7 @@
 //! One type per chart kind, each implementing [`render::Chart`].
 
 pub mod curves;
+pub mod grid_curve;
 pub mod heatmap;
 pub mod html;
 pub mod panels;
@@ -119,6 +120,12 @@ pub fn write_report_from(
     if let Some(layout) = heatmap::grid_layout(summary) {
         charts.push(render::render(
             &heatmap::GridHeatmap { summary, layout },
+            &charts_dir,
+        )?);
+    }
+    if let Some(line) = grid_curve::grid_line(summary) {
+        charts.push(render::render(
+            &grid_curve::GridCurve { summary, line },
             &charts_dir,
         )?);
     }
