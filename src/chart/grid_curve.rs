@@ -9,6 +9,7 @@ use crate::analysis::metric::{MetricId, COLLISION, SUCCESS};
 use crate::analysis::StudySummary;
 use plotters::coord::Shift;
 use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 /// The grid key and its variants, ordered by value.
 #[derive(Debug, Clone, PartialEq)]
@@ -109,24 +110,36 @@ impl Chart for GridCurve<'_> {
                 ))
                 .map_err(draw_err(name))?;
             chart
-                .draw_series(est.iter().filter(|p| p.2.is_finite() && p.3.is_finite()).map(
-                    |p| {
-                        ErrorBar::new_vertical(
-                            p.0,
-                            p.2,
-                            p.1,
-                            p.3,
-                            variant_colour(0).stroke_width(2),
-                            10,
-                        )
-                    },
-                ))
+                .draw_series(
+                    est.iter()
+                        .filter(|p| p.2.is_finite() && p.3.is_finite())
+                        .map(|p| {
+                            ErrorBar::new_vertical(
+                                p.0,
+                                p.2,
+                                p.1,
+                                p.3,
+                                variant_colour(0).stroke_width(2),
+                                10,
+                            )
+                        }),
+                )
                 .map_err(draw_err(name))?;
             chart
                 .draw_series(
                     est.iter()
                         .map(|p| Circle::new((p.0, p.1), 5, variant_colour(0).filled())),
                 )
+                .map_err(draw_err(name))?;
+            // Each point names its variant, beside the dot.
+            chart
+                .draw_series(l.points.iter().zip(&est).map(|(&(_, i), p)| {
+                    Text::new(
+                        s.variants[i].info.name.clone(),
+                        (p.0, p.1),
+                        text(12, MUTED).pos(Pos::new(HPos::Left, VPos::Bottom)),
+                    )
+                }))
                 .map_err(draw_err(name))?;
         }
         Ok(())

@@ -312,6 +312,51 @@ fn report_writes_every_chart_and_each_names_every_variant() {
 }
 
 #[test]
+fn a_one_key_grid_draws_its_curve_naming_each_level() {
+    // The fixture's 2 x 2 grid cut to one key: the two variants with acceleration weight 0.001 keep only their
+    // time weight, the other two are no longer on a grid. Then the one-key curve replaces the heat map.
+    let dir = scratch("report-grid-curve");
+    copy_tree(&fixture_dir(), &dir);
+    let p = dir.join("study.json");
+    let mut study: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&p).unwrap()).unwrap();
+    for v in study["variants"].as_array_mut().unwrap() {
+        let name = v["name"].as_str().unwrap().to_string();
+        if name.ends_with("-a0.001") {
+            let t = v["grid"]["reward.time.weight"].clone();
+            v["grid"] = serde_json::json!({ "reward.time.weight": t });
+        } else if name.starts_with("grid-") {
+            v["grid"] = serde_json::Value::Null;
+        }
+    }
+    std::fs::write(&p, serde_json::to_string_pretty(&study).unwrap()).unwrap();
+    let opts = ReportOptions {
+        analysis: AnalysisOptions {
+            resamples: 200,
+            seed: 5,
+            ..Default::default()
+        },
+        ..Default::default()
+    };
+    let files = write_report(&dir, &opts).unwrap();
+    let stems: Vec<&str> = files.charts.iter().map(|c| c.stem.as_str()).collect();
+    assert!(
+        stems.contains(&"grid_curve") && !stems.contains(&"grid_sensitivity"),
+        "{stems:?}"
+    );
+    let curve = files
+        .charts
+        .iter()
+        .find(|c| c.stem == "grid_curve")
+        .unwrap();
+    for name in ["grid-t0.01-a0.001", "grid-t0.1-a0.001"] {
+        assert!(curve.svg_text.contains(name), "the curve lacks {name}");
+    }
+    assert!(!curve.svg_text.contains("grid-t0.1-a0.01<"));
+    assert!(curve.svg_text.contains("reward.time.weight"));
+}
+
+#[test]
 fn report_command_redraws_from_files_and_maps_errors_to_exit_codes() {
     let bin = env!("CARGO_BIN_EXE_termwise");
     let dir = scratch("cli");
