@@ -410,3 +410,9 @@ fn command_builds_reproducibly_and_refuses_a_mismatched_arm() {
     let _ = std::fs::remove_dir_all(&d1);
     let _ = std::fs::remove_dir_all(&d2);
 }
+
+/// The model is shared across threads in an `Arc` (episodes of one run query it concurrently).
+const _: fn() = || {
+    fn shareable<T: Send + Sync>() {}
+    shareable::<WaypointModel>();
+};

@@ -94,6 +94,20 @@ fn hash(bytes: &[u8]) -> String {
     crate::study::experiment::fnv1a_hex(&[bytes])
 }
 
+/// Refuse a data set with fewer rows than asked for (generation gave up: draws almost never solvable).
+fn check_rows(ds: &DataSet, asked: usize, what: &str) -> Result<(), LearnedError> {
+    if ds.rows.len() < asked {
+        return Err(LearnedError::Args(format!(
+            "{what}: only {} of {asked} rows after {} episodes ({} unsolved or skipped): the draws in scenario `{}` are rarely solvable",
+            ds.rows.len(),
+            ds.episodes,
+            ds.skipped,
+            ds.layout.scenario
+        )));
+    }
+    Ok(())
+}
+
 fn check_args(a: &BuildArgs) -> Result<(), LearnedError> {
     let bad = |m: String| Err(LearnedError::Args(m));
     let (d, t) = (&a.data, &a.train);
@@ -180,6 +194,7 @@ fn dataset_stage(a: &BuildArgs) -> Result<(DataSet, DatasetFile, bool), LearnedE
     }
     let began = Instant::now();
     let ds = DataSet::generate(&a.scenario, &a.plan, &a.data);
+    check_rows(&ds, a.data.samples, "data set")?;
     let csv = ds.to_csv();
     let secs = began.elapsed().as_secs_f64();
     let rec = DatasetFile {
@@ -295,6 +310,7 @@ pub fn build(a: &BuildArgs) -> Result<BuildOutcome, LearnedError> {
         ..a.data.clone()
     };
     let held = DataSet::generate(&a.scenario, &a.plan, &spec);
+    check_rows(&held, a.holdout, "held-out rows")?;
     let mut sets = vec![assess(
         &model,
         &held,
@@ -310,6 +326,7 @@ pub fn build(a: &BuildArgs) -> Result<BuildOutcome, LearnedError> {
             ..spec.clone()
         };
         let held = DataSet::generate(&a.scenario, &a.plan, &fixed);
+        check_rows(&held, a.holdout, "held-out rows")?;
         sets.push(assess(
             &model,
             &held,

@@ -21,6 +21,10 @@ use std::sync::Arc;
 /// grid per layout, so layouts are reused a few times).
 pub const EPISODES_PER_LAYOUT: usize = 8;
 
+/// Episodes begun per requested row before generation gives up (a scenario whose draws are almost never
+/// solvable): it then returns fewer rows than asked for, and `build` refuses them.
+pub const MAX_EPISODES_PER_ROW: usize = 20;
+
 /// What to generate (command options of `termwise waypoint-model`).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct DataSpec {
@@ -114,7 +118,7 @@ impl DataSet {
         let obs = ObservationSpec::default();
         let reward = RewardSpec::default();
         let mut ep: Option<Episode> = None;
-        while ds.rows.len() < spec.samples {
+        while ds.rows.len() < spec.samples && ds.episodes < MAX_EPISODES_PER_ROW * spec.samples {
             if ep.is_none() || spec.obstacle_shift > 0.0 {
                 let sc = if spec.obstacle_shift > 0.0 {
                     Arc::new(shifted(scenario, spec.obstacle_shift, &mut rng))
