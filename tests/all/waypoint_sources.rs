@@ -194,3 +194,30 @@ fn bad_waypoint_settings_are_refused_with_the_key_named() {
         assert!(e.contains(key), "{extra}: {e}");
     }
 }
+
+#[test]
+fn the_learned_source_ends_on_the_goal_and_starts_at_the_arm() {
+    // The shipped model of the moving-goal scene: its last waypoint is moved onto the goal by damped least
+    // squares, so the effector waypoint there is the goal (every evaluation goal is reachable within the joint
+    // limits); the first waypoint is the arm's own configuration.
+    let exp =
+        experiment_with("[waypoints]\nsource = \"learned\"\nmodel = \"../models/moving-goal\"\n")
+            .unwrap();
+    let mut ep = exp.variants[0].episode();
+    for j in 0..20 {
+        begin_eval(&mut ep, 1000, j);
+        let goal = ep.sim.goal();
+        let q = ep.sim.state().q;
+        let p = &ep.path;
+        assert_eq!(p.joints.len(), 5);
+        assert_eq!(&p.joints[0][..2], &q[..2]);
+        let end = *p.points.last().unwrap();
+        assert!(
+            (end[0] - goal[0]).hypot(end[1] - goal[1]) < 1e-4,
+            "episode {j}: ends {end:?}, goal {goal:?}"
+        );
+        // Learned every step: the reference follows the arm.
+        ep.step(&[0.5, -0.5]);
+        assert_eq!(&ep.path.joints[0][..2], &ep.sim.state().q[..2]);
+    }
+}

@@ -22,11 +22,22 @@ pub use network::{Network, Scaling};
 pub use quality::Quality;
 pub use train::{TrainSpec, TrainSummary};
 
+use super::ik::{damped_least_squares, DlsSettings};
 use super::{ArmSpace, ConfigSpace, PlanSpec, ReferencePath};
 use crate::sim::{ArmEnv, Scenario, MAX_JOINTS};
 use network::MAX_WIDTH;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
+
+/// Damped least squares that moves the model's last waypoint onto the goal (`WaypointModel::predict`): the
+/// planner's settings with fewer updates (from a nearby configuration a few suffice; at most 30 bounds the
+/// query time).
+const GOAL_SNAP: DlsSettings = DlsSettings {
+    damping: 0.05,
+    tolerance: 1e-6,
+    max_iterations: 30,
+    max_step: 0.5,
+};
 
 /// Clearance a path must keep to count as collision-free in `path_collides`, m: the planner's smallest margin
 /// `plan::MIN_MARGIN` (0.1 mm). Not 0: the checker steps by the clearance, which a zero margin lets shrink
@@ -212,6 +223,23 @@ impl WaypointModel {
             }
             joints.push(j);
             points.push(arm.effector(&j[..n]));
+        }
+        // The goal is known exactly: the last waypoint is moved onto it by damped least squares from the
+        // network's goal configuration (which keeps its elbow side), within the joint bounds. Without this the
+        // network's last waypoint missed the goal by 7.8 cm on average on the moving-goal scene (more than the
+        // 5 cm goal tolerance), and the waypoint terms would pull the arm beside the goal.
+        if let Some(last) = joints.last_mut() {
+            let (mut lo, mut hi) = ([0.0; MAX_JOINTS], [0.0; MAX_JOINTS]);
+            for i in 0..n {
+                let [a, b] = l.joint_bounds[i];
+                lo[i] = a + offset[i];
+                hi[i] = b + offset[i];
+            }
+            let (snapped, _) = damped_least_squares(arm, goal, last, &lo, &hi, &GOAL_SNAP);
+            *last = snapped;
+            if let Some(p) = points.last_mut() {
+                *p = arm.effector(&snapped[..n]);
+            }
         }
         ReferencePath {
             joints,
