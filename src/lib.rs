@@ -22,3 +22,4 @@ pub mod reward;
 pub mod sim;
 pub mod study;
 pub mod task;
+pub mod waypoint_model;

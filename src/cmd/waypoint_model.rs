@@ -1,7 +1,8 @@
 //! `termwise waypoint-model`: build (or assess) a learned waypoint model for a variant of an experiment.
 
 use super::{Failure, Outcome};
-use crate::plan::learned::{build, BuildArgs, DataSpec, LearnedError, TrainSpec};
+use crate::plan::learned::LearnedError;
+use crate::waypoint_model::{build, BuildArgs, DataSpec, TrainSpec};
 use std::path::PathBuf;
 use std::process::ExitCode;
 

@@ -10,11 +10,12 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::sync::Arc;
 use termwise::plan::learned::network::{forward_t, Network};
-use termwise::plan::learned::quality::waypoint_errors;
-use termwise::plan::learned::train::train;
-use termwise::plan::learned::{path_collides, DataSet, DataSpec, TrainSpec, WaypointModel};
+use termwise::plan::learned::{path_collides, WaypointModel};
 use termwise::plan::{PlanSpec, ReferencePath};
 use termwise::sim::{ArmEnv, Scenario, MAX_JOINTS};
+use termwise::waypoint_model::quality::waypoint_errors;
+use termwise::waypoint_model::train::train;
+use termwise::waypoint_model::{DataSet, DataSpec, TrainSpec};
 
 fn scratch(name: &str) -> PathBuf {
     let d = std::env::temp_dir().join(format!("termwise-wm-{}-{name}", std::process::id()));

@@ -1,26 +1,20 @@
-//! The learned waypoint model: a small network that imitates the planner, fast enough to ask at every control
-//! step. `termwise waypoint-model` builds one (`build`: a data set of planner solutions, supervised training,
-//! a quality report); episodes load it (`WaypointModel::load`), check it fits their arm and obstacles
-//! (`check_fits`) and ask it for a reference path (`predict`).
+//! The learned waypoint model at query time: a small network that imitates the planner, fast enough to ask at
+//! every control step. `termwise waypoint-model` builds one (module `waypoint_model`: a data set of planner
+//! solutions, supervised training, a quality report); episodes load it (`WaypointModel::load`), check it fits
+//! their arm and obstacles (`check_fits`) and ask it for a reference path (`predict`). This part knows only the
+//! arm, the planner's collision checks and the network's weights; building one needs the task and the learner,
+//! which sit above `plan`.
 //!
 //! The model maps (q, goal, obstacles) to the offsets of waypoints 1..K-1 from q in joint space (input layout:
 //! `layout::Layout`); waypoint 0 is q itself. Predicted joints are clamped into the planner's joint box.
 //! Collisions of a path are judged by the planner's own checker (`plan::ArmSpace`) with the margin
 //! [`COLLISION_MARGIN`].
 
-pub mod build;
-pub mod dataset;
 pub mod layout;
 pub mod network;
-pub mod quality;
-pub mod train;
 
-pub use build::{build, BuildArgs, BuildOutcome};
-pub use dataset::{DataSet, DataSpec};
 pub use layout::Layout;
 pub use network::{Network, Scaling};
-pub use quality::Quality;
-pub use train::{TrainSpec, TrainSummary};
 
 use super::ik::{damped_least_squares, DlsSettings};
 use super::{ArmSpace, ConfigSpace, PlanSpec, ReferencePath};
@@ -280,4 +274,54 @@ pub fn path_collides(env: &ArmEnv, path: &ReferencePath) -> bool {
     path.joints
         .windows(2)
         .any(|w| !space.edge_free(&back(&w[0]), &back(&w[1])))
+}
+
+/// Training settings (command options of `termwise waypoint-model`).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct TrainSpec {
+    /// Hidden layer widths (tanh). Default [64, 64]; empty = a linear model.
+    pub hidden: Vec<usize>,
+    /// Most passes over the training rows. Default 300.
+    pub max_epochs: usize,
+    /// Epochs without a new best validation error before training stops. Default 20.
+    pub patience: usize,
+    /// Rows per Adam step. Default 128.
+    pub batch: usize,
+    /// Adam step size. Default 1e-3.
+    pub learning_rate: f64,
+    /// Share of the rows held out for validation (early stopping). Default 0.1.
+    pub validation_fraction: f64,
+    /// Seed of the split, the initial weights and the shuffling. Default 0.
+    pub seed: u64,
+}
+
+impl Default for TrainSpec {
+    fn default() -> Self {
+        TrainSpec {
+            hidden: vec![64, 64],
+            max_epochs: 300,
+            patience: 20,
+            batch: 128,
+            learning_rate: 1e-3,
+            validation_fraction: 0.1,
+            seed: 0,
+        }
+    }
+}
+
+/// How training went (recorded in model.json).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct TrainSummary {
+    /// Epochs run.
+    pub epochs: usize,
+    /// Epoch (1-based) whose weights were kept.
+    pub best_epoch: usize,
+    /// Validation mean squared error of the kept weights, rad^2 per output value.
+    pub best_validation_mse: f64,
+    /// Training mean squared error of the kept weights, rad^2 per output value.
+    pub train_mse: f64,
+    pub train_rows: usize,
+    pub validation_rows: usize,
+    /// "patience" (early stop) or "max-epochs".
+    pub stopped_by: String,
 }

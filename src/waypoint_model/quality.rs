@@ -3,7 +3,7 @@
 //! per query against the time per plan on one core.
 
 use super::dataset::DataSet;
-use super::{path_collides, WaypointModel, COLLISION_MARGIN};
+use crate::plan::learned::{path_collides, WaypointModel, COLLISION_MARGIN};
 use crate::plan::{plan_path, PlanSpec, ReferencePath};
 use crate::sim::{Arm, ArmEnv, JointVec, MAX_JOINTS};
 use rand::SeedableRng;

@@ -5,8 +5,8 @@
 //! because at run time the model is asked from every state of an episode. Seeded and written as CSV
 //! byte-for-byte reproducibly.
 
-use super::layout::Layout;
 use crate::curriculum::{Curriculum, Uniform};
+use crate::plan::learned::Layout;
 use crate::plan::{plan_path, PlanSpec, ReferencePath};
 use crate::reward::RewardSpec;
 use crate::sim::{ArmEnv, JointVec, Scenario, MAX_JOINTS};

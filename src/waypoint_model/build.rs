@@ -5,9 +5,12 @@
 
 use super::dataset::{DataSet, DataSpec};
 use super::quality::{assess, Quality};
-use super::train::{train, TrainSpec};
-use super::{LearnedError, ModelFile, WaypointModel, MODEL_FORMAT, MODEL_JSON, WEIGHTS};
+use super::train::train;
 use crate::fsio::write_atomic;
+use crate::plan::learned::TrainSpec;
+use crate::plan::learned::{
+    LearnedError, ModelFile, WaypointModel, MODEL_FORMAT, MODEL_JSON, WEIGHTS,
+};
 use crate::plan::PlanSpec;
 use crate::sim::Scenario;
 use serde::{Deserialize, Serialize};
@@ -66,7 +69,7 @@ pub struct DatasetFile {
     pub format: String,
     /// Everything the rows depend on; a rerun with equal inputs reuses the file.
     pub inputs: serde_json::Value,
-    pub layout: super::Layout,
+    pub layout: crate::plan::learned::Layout,
     pub inputs_columns: Vec<String>,
     pub output_columns: Vec<String>,
     pub file: String,
@@ -137,12 +140,12 @@ fn check_args(a: &BuildArgs) -> Result<(), LearnedError> {
     }
     if t.hidden
         .iter()
-        .any(|&h| h == 0 || h > super::network::MAX_WIDTH)
+        .any(|&h| h == 0 || h > crate::plan::learned::network::MAX_WIDTH)
         || t.hidden.len() > 8
     {
         return bad(format!(
             "--hidden must list at most 8 widths in 1..={}, got {:?}",
-            super::network::MAX_WIDTH,
+            crate::plan::learned::network::MAX_WIDTH,
             t.hidden
         ));
     }
@@ -184,7 +187,7 @@ fn dataset_stage(a: &BuildArgs) -> Result<(DataSet, DatasetFile, bool), LearnedE
     if let Some(old) = read_json::<DatasetFile>(&json_path) {
         if let Ok(bytes) = std::fs::read(&csv_path) {
             if old.inputs == inputs && old.format == DATASET_FORMAT && hash(&bytes) == old.fnv1a {
-                let layout = super::Layout::of(&a.scenario, &a.plan);
+                let layout = crate::plan::learned::Layout::of(&a.scenario, &a.plan);
                 let text = String::from_utf8_lossy(&bytes);
                 if let Ok(ds) = DataSet::from_csv(&text, layout) {
                     return Ok((ds, old, true));

@@ -7,63 +7,13 @@
 //! validation set and patience: Prechelt, "Early stopping — but when?", in Neural Networks: Tricks of the
 //! Trade, Springer 1998.
 
-use super::network::{forward_t, Layer, Network, Scaling};
 use crate::learn::{orthogonal, Adam, AdamParams};
+use crate::plan::learned::network::{forward_t, Layer, Network, Scaling};
+use crate::plan::learned::{TrainSpec, TrainSummary};
 use candle_core::{Device, Tensor};
 use rand::seq::SliceRandom;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
-use serde::{Deserialize, Serialize};
-
-/// Training settings (command options of `termwise waypoint-model`).
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct TrainSpec {
-    /// Hidden layer widths (tanh). Default [64, 64]; empty = a linear model.
-    pub hidden: Vec<usize>,
-    /// Most passes over the training rows. Default 300.
-    pub max_epochs: usize,
-    /// Epochs without a new best validation error before training stops. Default 20.
-    pub patience: usize,
-    /// Rows per Adam step. Default 128.
-    pub batch: usize,
-    /// Adam step size. Default 1e-3.
-    pub learning_rate: f64,
-    /// Share of the rows held out for validation (early stopping). Default 0.1.
-    pub validation_fraction: f64,
-    /// Seed of the split, the initial weights and the shuffling. Default 0.
-    pub seed: u64,
-}
-
-impl Default for TrainSpec {
-    fn default() -> Self {
-        TrainSpec {
-            hidden: vec![64, 64],
-            max_epochs: 300,
-            patience: 20,
-            batch: 128,
-            learning_rate: 1e-3,
-            validation_fraction: 0.1,
-            seed: 0,
-        }
-    }
-}
-
-/// How training went (recorded in model.json).
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct TrainSummary {
-    /// Epochs run.
-    pub epochs: usize,
-    /// Epoch (1-based) whose weights were kept.
-    pub best_epoch: usize,
-    /// Validation mean squared error of the kept weights, rad^2 per output value.
-    pub best_validation_mse: f64,
-    /// Training mean squared error of the kept weights, rad^2 per output value.
-    pub train_mse: f64,
-    pub train_rows: usize,
-    pub validation_rows: usize,
-    /// "patience" (early stop) or "max-epochs".
-    pub stopped_by: String,
-}
 
 /// A trained network with its scaling and summary.
 pub struct Trained {
