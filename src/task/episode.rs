@@ -307,12 +307,16 @@ impl Episode {
             u[i] = action[i].clamp(-1.0, 1.0) as f64 * self.sim.action_limits()[i];
         }
         let now = self.sim.step(&u[..n]);
-        self.renew(&now);
+        // The transition's reward and path deviation are measured on the reference the policy saw when it
+        // acted; a reference renewed after an event (or every step, by a learned source) is what it sees next.
+        // (Renewing first measured both ends on the new path: one rooted at the arm every step left the path
+        // terms nothing to pay — progress along it and distance from it are then zero.)
         let r = self.composer.step(&self.prev, &now);
         let terminal = self.composer.ends_episode(&now);
         let deviation = self.path.polyline().project(now.ee).distance;
         let dt = self.sim.scenario().control_dt();
         self.acc.record(&now, n, dt, r, deviation);
+        self.renew(&now);
         self.prev = now;
         (now, r, terminal)
     }
