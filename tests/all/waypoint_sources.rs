@@ -221,3 +221,46 @@ fn the_learned_source_ends_on_the_goal_and_starts_at_the_arm() {
         assert_eq!(&ep.path.joints[0][..2], &ep.sim.state().q[..2]);
     }
 }
+
+#[test]
+fn a_step_is_paid_on_the_reference_the_policy_acted_on() {
+    // Progress along the reference (the waypoint_progress term: weight x scale x change of the effector's arc
+    // length along the path) is measured on the path observed before the step, though the learned source
+    // renews the path after every step (rooted at the arm's new configuration, where progress would be 0).
+    let text = r#"
+[study]
+name = "paid"
+seeds = 1
+budget = 2048
+[scenario]
+file = "scenarios/table-2link-2obs.toml"
+[plan]
+clearance_margin = 0.02
+[reward.waypoint_progress]
+weight = 1.0
+[waypoints]
+source = "learned"
+model = "../models/moving-goal"
+"#;
+    let exp = experiment::parse(text, Path::new("experiments/paid.toml")).unwrap();
+    let mut ep = exp.variants[0].episode();
+    let mut paid = 0.0;
+    for j in 0..5 {
+        begin_eval(&mut ep, 1000, j);
+        for _ in 0..20 {
+            let seen = ep.path.clone();
+            let before = ep.sim.last_report().ee;
+            let (now, r, _) = ep.step(&[0.6, -0.4]);
+            let line = seen.polyline();
+            let progress = line.project(now.ee).along - line.project(before).along;
+            assert!(
+                (r - progress).abs() < 1e-12,
+                "reward {r}, progress on the seen path {progress}"
+            );
+            // The reference the policy sees next starts at the arm.
+            assert_eq!(&ep.path.joints[0][..2], &now.q[..2]);
+            paid += r.abs();
+        }
+    }
+    assert!(paid > 0.1, "the term pays: {paid}");
+}
