@@ -9,7 +9,6 @@ use crate::analysis::metric::{MetricId, COLLISION, SUCCESS};
 use crate::analysis::StudySummary;
 use plotters::coord::Shift;
 use plotters::prelude::*;
-use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 /// The grid key and its variants, ordered by value.
 #[derive(Debug, Clone, PartialEq)]
@@ -62,12 +61,22 @@ impl Chart for GridCurve<'_> {
         let s = self.summary;
         let l = &self.line;
         let name = self.stem();
+        // The variants, in the order of their values (a long list names its ends, to fit the line).
+        let names: Vec<&str> = l
+            .points
+            .iter()
+            .map(|&(_, i)| s.variants[i].info.name.as_str())
+            .collect();
+        let listed = if names.join(", ").len() <= 100 {
+            names.join(", ")
+        } else {
+            format!("{} ... {}", names[0], names[names.len() - 1])
+        };
         let head = draw_title(
             root,
             &format!("How do the results change with {}?", l.key),
             &format!(
-                "One variant per value of {} (generate.grid); dot: IQM across seeds; bar: {:.0}% bootstrap CI.",
-                l.key,
+                "Dot: IQM across seeds; bar: {:.0}% bootstrap CI. Variants, left to right: {listed}.",
                 s.options.confidence * 100.0
             ),
             name,
@@ -130,16 +139,6 @@ impl Chart for GridCurve<'_> {
                     est.iter()
                         .map(|p| Circle::new((p.0, p.1), 5, variant_colour(0).filled())),
                 )
-                .map_err(draw_err(name))?;
-            // Each point names its variant, beside the dot.
-            chart
-                .draw_series(l.points.iter().zip(&est).map(|(&(_, i), p)| {
-                    Text::new(
-                        s.variants[i].info.name.clone(),
-                        (p.0, p.1),
-                        text(12, MUTED).pos(Pos::new(HPos::Left, VPos::Bottom)),
-                    )
-                }))
                 .map_err(draw_err(name))?;
         }
         Ok(())
