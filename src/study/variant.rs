@@ -74,11 +74,22 @@ impl Experiment {
             seed,
             env!("CARGO_PKG_VERSION")
         );
-        fnv1a_hex(&[
-            st.name.as_bytes(),
-            v.name.as_bytes(),
-            v.merged.as_bytes(),
-            settings.as_bytes(),
-        ])
+        // A learned waypoint source's model is part of the configuration (its folder name is not enough: a
+        // rebuilt model must make the runs that used the old one stale). Without one the hash is unchanged.
+        match &v.waypoints.model {
+            None => fnv1a_hex(&[
+                st.name.as_bytes(),
+                v.name.as_bytes(),
+                v.merged.as_bytes(),
+                settings.as_bytes(),
+            ]),
+            Some(m) => fnv1a_hex(&[
+                st.name.as_bytes(),
+                v.name.as_bytes(),
+                v.merged.as_bytes(),
+                settings.as_bytes(),
+                m.digest().as_bytes(),
+            ]),
+        }
     }
 }

@@ -264,3 +264,31 @@ model = "../models/moving-goal"
     }
     assert!(paid > 0.1, "the term pays: {paid}");
 }
+
+#[test]
+fn a_rebuilt_model_makes_the_runs_that_used_the_old_one_stale() {
+    // The configuration hash of a learned-source variant covers the model's description and weights, not only
+    // its folder name: the same folder with a different model gives another hash, the same model the same one.
+    let dir = std::env::temp_dir().join(format!("termwise-rebuilt-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    for f in ["model.json", "model.safetensors"] {
+        std::fs::copy(Path::new("models/moving-goal").join(f), dir.join(f)).unwrap();
+    }
+    let extra = format!(
+        "[waypoints]\nsource = \"learned\"\nmodel = \"{}\"\n",
+        dir.display()
+    );
+    let hash = || {
+        let exp = experiment_with(&extra).unwrap();
+        exp.config_hash(&exp.variants[0], 0)
+    };
+    let first = hash();
+    assert_eq!(hash(), first);
+    let json = std::fs::read_to_string(dir.join("model.json")).unwrap();
+    let changed = json.replacen("\"best_epoch\": ", "\"best_epoch\": 1", 1);
+    assert_ne!(json, changed);
+    std::fs::write(dir.join("model.json"), changed).unwrap();
+    assert_ne!(hash(), first);
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -107,6 +107,9 @@ pub struct ModelFile {
 pub struct WaypointModel {
     pub file: ModelFile,
     net: Network,
+    /// FNV-1a over the description and every weight's bits: what a run's configuration hash includes, so a
+    /// rebuilt model makes the runs that used the old one stale.
+    digest: String,
 }
 
 impl WaypointModel {
@@ -145,7 +148,15 @@ impl WaypointModel {
                     .into(),
             );
         }
-        Ok(WaypointModel { file, net })
+        let text = serde_json::to_vec(&file).map_err(|e| e.to_string())?;
+        let mut weights = Vec::new();
+        for l in &net.layers {
+            for x in l.w.iter().chain(&l.b) {
+                weights.extend_from_slice(&x.to_bits().to_le_bytes());
+            }
+        }
+        let digest = crate::fsio::fnv1a_hex(&[&text, &weights]);
+        Ok(WaypointModel { file, net, digest })
     }
 
     /// Load a model folder written by `termwise waypoint-model` (model.json and model.safetensors).
@@ -174,6 +185,11 @@ impl WaypointModel {
         let wp = dir.join(&file.weights);
         let net = Network::load(&wp, &sizes).map_err(|m| bad(&wp, m))?;
         WaypointModel::new(file, net).map_err(|m| bad(&jp, m))
+    }
+
+    /// Digest of the model (its description and weights), 16 hex digits.
+    pub fn digest(&self) -> &str {
+        &self.digest
     }
 
     /// The arm, obstacle slots and K the model was trained for.
