@@ -104,6 +104,20 @@ pub fn host_tag() -> String {
     }
 }
 
+/// FNV-1a 64-bit hash (stable across platforms and releases), as 16 hex digits.
+pub fn fnv1a_hex(parts: &[&[u8]]) -> String {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for p in parts {
+        for b in *p {
+            h ^= *b as u64;
+            h = h.wrapping_mul(0x0000_0100_0000_01b3);
+        }
+        h ^= 0xff;
+        h = h.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    format!("{h:016x}")
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -195,18 +209,4 @@ mod tests {
         assert_eq!(leftovers, 0);
         std::fs::remove_dir_all(&dir).unwrap();
     }
-}
-
-/// FNV-1a 64-bit hash (stable across platforms and releases), as 16 hex digits.
-pub fn fnv1a_hex(parts: &[&[u8]]) -> String {
-    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
-    for p in parts {
-        for b in *p {
-            h ^= *b as u64;
-            h = h.wrapping_mul(0x0000_0100_0000_01b3);
-        }
-        h ^= 0xff;
-        h = h.wrapping_mul(0x0000_0100_0000_01b3);
-    }
-    format!("{h:016x}")
 }
