@@ -213,22 +213,44 @@ pub fn cells_script(
     s
 }
 
-/// The report job script: prints the run status and draws the report from whatever the array left.
-pub fn report_script(exp: &Experiment, exe: &Path, out: &Path, spec: &SlurmSpec) -> String {
+/// The opening of a single (not array) job's script: the shebang, a comment `what` naming the study, the job
+/// name `<study>-<suffix>`, the common options with the report's time limit, the log
+/// `<out>/slurm/logs/<log>-%j.out`, and strict mode.
+pub(crate) fn single_job_opening(
+    exp: &Experiment,
+    spec: &SlurmSpec,
+    out: &Path,
+    what: &str,
+    suffix: &str,
+    log: &str,
+) -> String {
     let mut s = String::from("#!/bin/bash\n");
+    let _ = writeln!(s, "# termwise study `{}`: {what}", exp.study.name);
     let _ = writeln!(
         s,
-        "# termwise study `{}`: draws report.html after the job array has ended (afterany).",
-        exp.study.name
+        "#SBATCH --job-name={}-{suffix}",
+        job_name(&exp.study.name)
     );
-    let _ = writeln!(s, "#SBATCH --job-name={}-report", job_name(&exp.study.name));
     common_options(&mut s, spec, &spec.report_time);
     let _ = writeln!(
         s,
-        "#SBATCH --output={}/slurm/logs/report-%j.out",
+        "#SBATCH --output={}/slurm/logs/{log}-%j.out",
         out.display()
     );
     s.push_str("set -euo pipefail\n");
+    s
+}
+
+/// The report job script: prints the run status and draws the report from whatever the array left.
+pub fn report_script(exp: &Experiment, exe: &Path, out: &Path, spec: &SlurmSpec) -> String {
+    let mut s = single_job_opening(
+        exp,
+        spec,
+        out,
+        "draws report.html after the job array has ended (afterany).",
+        "report",
+        "report",
+    );
     let _ = writeln!(s, "{} status {} || true", q(exe), q(out));
     let _ = writeln!(s, "exec {} report {}", q(exe), q(out));
     s

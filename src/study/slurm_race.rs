@@ -67,20 +67,14 @@ fn decide_script(
     spec: &SlurmSpec,
 ) -> String {
     let (exe, experiment, out) = paths;
-    let mut s = String::from("#!/bin/bash\n");
-    let _ = writeln!(
-        s,
-        "# termwise study `{}`: racing rung {k}, decided from the finished runs (writes racing.json).",
-        exp.study.name
+    let mut s = super::slurm::single_job_opening(
+        exp,
+        spec,
+        out,
+        &format!("racing rung {k}, decided from the finished runs (writes racing.json)."),
+        &format!("r{k}"),
+        &format!("decide-{k}"),
     );
-    let _ = writeln!(s, "#SBATCH --job-name={}-r{k}", job_name(&exp.study.name));
-    common_options(&mut s, spec, &spec.report_time);
-    let _ = writeln!(
-        s,
-        "#SBATCH --output={}/slurm/logs/decide-{k}-%j.out",
-        out.display()
-    );
-    s.push_str("set -euo pipefail\n");
     let _ = writeln!(
         s,
         "exec {} run {} --out {} --decide {k}",
