@@ -9,7 +9,41 @@
 //! (4 of 64 rejected quickstart draws with a 2 cm margin, before this rule).
 
 use crate::plan::ik;
-use crate::sim::{ArmEnv, JointVec, MAX_JOINTS};
+use crate::sim::{ArmEnv, JointVec, Shape, MAX_JOINTS};
+use std::sync::{Arc, Mutex};
+
+/// Grids kept by `ConnectivityGrid::shared` (the oldest is dropped beyond this many).
+const SHARED_GRIDS: usize = 16;
+
+/// Every input a grid depends on, as exact bit patterns: the links' lengths, radii and limits, the workspace
+/// box, self-collision, the current obstacles and the margin.
+fn grid_key(env: &ArmEnv, margin: f64) -> Vec<u64> {
+    let sc = env.scenario();
+    let mut k = vec![sc.n() as u64, sc.self_collision as u64, margin.to_bits()];
+    for l in &sc.arm.links {
+        k.extend([l.length, l.radius, l.q_min, l.q_max].map(f64::to_bits));
+    }
+    k.extend(
+        [sc.workspace_min, sc.workspace_max]
+            .iter()
+            .flatten()
+            .map(|x| x.to_bits()),
+    );
+    for s in env.obstacles() {
+        match *s {
+            Shape::Disc { center, radius } => {
+                k.extend([0.0, center[0], center[1], radius].map(f64::to_bits))
+            }
+            Shape::Box { center, half } => {
+                k.extend([1.0, center[0], center[1], half[0], half[1]].map(f64::to_bits))
+            }
+        }
+    }
+    k
+}
+
+type SharedGrids = Vec<(Vec<u64>, Arc<Option<ConnectivityGrid>>)>;
+static SHARED: Mutex<SharedGrids> = Mutex::new(Vec::new());
 
 /// Cells per joint. 256 cells over 2 pi rad is 0.025 rad, about 2 cm of effector motion for the shipped arms.
 pub const CELLS: usize = 256;
@@ -91,6 +125,33 @@ impl ConnectivityGrid {
         })
     }
 
+    /// `build`, computed once per process for each distinct arm, workspace, obstacle layout and margin (a
+    /// run's training environments and its evaluations share one grid). The grid is a pure function of those
+    /// inputs, so sharing changes no result.
+    pub fn shared(env: &ArmEnv, margin: f64) -> Arc<Option<ConnectivityGrid>> {
+        let key = grid_key(env, margin);
+        let find = |grids: &SharedGrids| {
+            grids
+                .iter()
+                .find(|(k, _)| *k == key)
+                .map(|(_, g)| g.clone())
+        };
+        if let Some(g) = find(&SHARED.lock().unwrap_or_else(|e| e.into_inner())) {
+            return g;
+        }
+        // Built outside the lock (another thread may build the same grid meanwhile: both are equal).
+        let g = Arc::new(ConnectivityGrid::build(env, margin));
+        let mut grids = SHARED.lock().unwrap_or_else(|e| e.into_inner());
+        if let Some(found) = find(&grids) {
+            return found;
+        }
+        if grids.len() >= SHARED_GRIDS {
+            grids.remove(0);
+        }
+        grids.push((key, g.clone()));
+        g
+    }
+
     /// The component of configuration q: its cell's, or when that cell is blocked (q close to an obstacle) the
     /// component of a free neighbouring cell (None if all are blocked or q lies outside the box).
     pub fn component(&self, q: &[f64]) -> Option<u32> {
@@ -128,8 +189,8 @@ impl ConnectivityGrid {
         })
     }
 
-    /// Whether some inverse-kinematics solution for the effector goal lies in the start's component. Free joints
-    /// that wound past +-pi are wrapped first (as the planner does).
+    /// Whether some inverse-kinematics solution for the effector goal keeps the margin and lies in the start's
+    /// component. Free joints that wound past +-pi are wrapped first (as the planner does).
     pub fn may_connect(&self, env: &ArmEnv, start: &JointVec, goal: [f64; 2]) -> bool {
         let arm = &env.scenario().arm;
         if env.clearances(&start[..2]).0 < 2.0 * self.margin {
@@ -138,17 +199,28 @@ impl ConnectivityGrid {
         let mut s = [0.0; MAX_JOINTS];
         for i in 0..2 {
             s[i] = start[i];
-            let lo = self.lo[i];
-            let hi = self.lo[i] + self.step[i] * CELLS as f64;
-            if s[i] < lo || s[i] > hi {
+            if s[i] < self.lo[i] || s[i] > self.hi(i) {
                 s[i] = ik::wrap_angle(s[i]);
             }
         }
         let Some(c) = self.component(&s[..2]) else {
             return true; // cannot tell: leave it to the planner
         };
+        // Only goal configurations the planner may aim at count: it drops those outside the joint box or closer
+        // to contact than its margin (`plan::goal_configurations`, `plan::plan_detailed`). Such a configuration
+        // would otherwise borrow a free neighbouring cell's label, and the planner would spend its generous budget
+        // on a goal it cannot aim at (80 of 118 quickstart draws that failed it, in one 500k-step run).
+        let margin = self.margin.max(crate::plan::MIN_MARGIN);
+        let inside = |g: &[f64]| (0..2).all(|i| g[i] >= self.lo[i] && g[i] <= self.hi(i));
         ik::two_link(arm.links[0].length, arm.links[1].length, goal)
             .iter()
-            .any(|g| self.component(g) == Some(c))
+            .any(|g| {
+                inside(g) && self.component(g) == Some(c) && env.clearances(&g[..2]).0 >= margin
+            })
+    }
+
+    /// Upper bound of the box on joint i.
+    fn hi(&self, i: usize) -> f64 {
+        self.lo[i] + self.step[i] * CELLS as f64
     }
 }

@@ -153,8 +153,19 @@ impl GridIndex {
         };
         let Some(c) = cell else {
             // A small tree, or a query outside the grid: scan everything.
-            for i in 0..nodes.len() {
-                consider(&mut best, i);
+            if n == 2 {
+                // The same sums as `sq_dist` (0 + a^2 + b^2 is a^2 + b^2 exactly), without its loop.
+                for (i, p) in nodes.iter().enumerate() {
+                    let (d0, d1) = (p[0] - q[0], p[1] - q[1]);
+                    let d2 = d0 * d0 + d1 * d1;
+                    if d2 < best.1 || (d2 == best.1 && i < best.0) {
+                        best = (i, d2);
+                    }
+                }
+            } else {
+                for i in 0..nodes.len() {
+                    consider(&mut best, i);
+                }
             }
             return best;
         };

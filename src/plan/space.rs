@@ -126,16 +126,10 @@ impl<'a> ArmSpace<'a> {
         let n = arm.n();
         let mut lo = [0.0; MAX_JOINTS];
         let mut hi = [0.0; MAX_JOINTS];
-        let mut lever = [0.0; MAX_JOINTS];
-        let factor = if env.scenario().self_collision {
-            2.0
-        } else {
-            1.0
-        };
+        let lever = env.scenario().lever_arms();
         for (i, l) in arm.links.iter().enumerate() {
             lo[i] = l.q_min.max(-std::f64::consts::PI);
             hi[i] = l.q_max.min(std::f64::consts::PI);
-            lever[i] = factor * arm.links[i..].iter().map(|k| k.length).sum::<f64>();
         }
         ArmSpace {
             env,

@@ -9,7 +9,7 @@
 //!                          evaluations.csv         EvalRow per evaluation
 //!                          term_contributions.csv  TermTable (env_steps, one column per reward term)
 //!                          training.csv            TrainingRow per PPO iteration (reproducible)
-//!                          training-speed.csv      env_steps, steps_per_s (wall clock: differs run to run)
+//!                          training-speed.csv      env_steps, steps_per_s, rollout_s, update_s (wall clock: differs run to run)
 //!                          policy.safetensors/.json, policy-best.safetensors/.json   checkpoints
 //!                          probes.csv              ProbeRow per probe condition (studies with probes)
 //! <out>/racing.json                     RacingRecord (studies with racing)

@@ -59,6 +59,12 @@ pub struct SpeedRow {
     /// Environment steps per wall-clock second over the iteration.
     #[serde(serialize_with = "display_f64")]
     pub steps_per_s: f64,
+    /// Wall-clock seconds of the iteration's rollout (policy passes, environment steps, resets and their
+    /// planning) and of its update (GAE excluded, both epochs' passes and Adam steps).
+    #[serde(serialize_with = "display_f64")]
+    pub rollout_s: f64,
+    #[serde(serialize_with = "display_f64")]
+    pub update_s: f64,
 }
 
 fn write_rows<T: Serialize>(path: &Path, rows: &[T]) -> Result<(), ResultsError> {

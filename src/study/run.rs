@@ -159,6 +159,8 @@ impl RunTables {
             iteration: st.iteration,
             env_steps: st.env_steps,
             steps_per_s: st.steps_per_second,
+            rollout_s: st.rollout_seconds,
+            update_s: st.update_seconds,
         });
     }
 

@@ -66,7 +66,7 @@ pub struct Episode {
     renewed_at: f64,
     /// Joint-space connectivity of the obstacle layouts episodes began with (two-link arms; curricula may
     /// vary the obstacle count, so a few layouts are kept).
-    grids: Vec<(Vec<Shape>, Option<ConnectivityGrid>)>,
+    grids: Vec<(Vec<Shape>, Arc<Option<ConnectivityGrid>>)>,
 }
 
 impl Episode {
@@ -215,12 +215,12 @@ impl Episode {
                 if self.grids.len() >= 8 {
                     self.grids.remove(0);
                 }
-                let g = ConnectivityGrid::build(&self.sim, self.plan.clearance_margin);
+                let g = ConnectivityGrid::shared(&self.sim, self.plan.clearance_margin);
                 self.grids.push((layout.to_vec(), g));
                 self.grids.len() - 1
             }
         };
-        match &self.grids[k].1 {
+        match self.grids[k].1.as_ref() {
             Some(g) => g.may_connect(&self.sim, &d.start.q, d.goal),
             None => true,
         }

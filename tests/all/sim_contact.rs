@@ -433,3 +433,78 @@ fn clearance_observation_matches_the_closed_form_distance_and_its_joint_gradient
     assert_eq!(link, 1);
     assert!(out[2].abs() > 1e-3 && out[3].abs() > 1e-3);
 }
+
+/// The contact certificate (`ArmEnv::step` skips resolving substeps that stay within the clearance of the control
+/// step's start) must change no bit of any trajectory: the same arms driven into still and moving discs, a box,
+/// the workspace wall and themselves, stepped with the certificate on and off, give identical states, clearances
+/// and contact flags at every step. A definition check of an exact shortcut: no outside source applies.
+#[test]
+fn the_contact_certificate_changes_no_bit_of_any_trajectory() {
+    let still = "[[obstacle]]\nshape = \"disc\"\ncenter = [0.35, 0.35]\nradius = 0.08\n\
+                 [[obstacle]]\nshape = \"box\"\ncenter = [-0.3, 0.6]\nhalf = [0.12, 0.05]\n";
+    let moving =
+        "[[obstacle]]\nshape = \"disc\"\ncenter = [0.45, 0.2]\nradius = 0.07\nmotion = \"sine\"\n\
+                  amplitude = [0.2, 0.1]\nperiod = 0.7\n";
+    let two = [(0.6, 1.0, 0.03), (0.4, 0.6, 0.03)];
+    let three = [(0.5, 1.0, 0.03), (0.4, 0.7, 0.03), (0.35, 0.5, 0.03)];
+    let cases: Vec<(&str, Scenario)> = vec![
+        (
+            "still, acceleration",
+            (*scenario(&two, "acceleration", still)).clone(),
+        ),
+        ("still, torque", (*scenario(&two, "torque", still)).clone()),
+        (
+            "moving disc",
+            (*scenario(&two, "acceleration", moving)).clone(),
+        ),
+        ("walls", {
+            let mut sc = (*scenario(&two, "acceleration", still)).clone();
+            sc.workspace_min = [-0.7, -0.7];
+            sc.workspace_max = [0.7, 0.7];
+            sc
+        }),
+        ("three links, self-collision", {
+            let mut sc = (*scenario(&three, "acceleration", still)).clone();
+            sc.self_collision = true;
+            sc
+        }),
+    ];
+    for (name, sc) in cases {
+        let sc = Arc::new(sc);
+        let n = sc.n();
+        let mut on = ArmEnv::new(sc.clone());
+        let mut off = ArmEnv::new(sc.clone());
+        off.set_contact_certificate(false);
+        let start = ArmState::at_rest(&[0.1, 0.2, -0.3][..n]);
+        on.reset(start, [0.0, 0.9], 0);
+        off.reset(start, [0.0, 0.9], 0);
+        let mut rng = ChaCha8Rng::seed_from_u64(11);
+        let (mut touched, mut free) = (0, 0);
+        let mut push = [0.0; MAX_JOINTS];
+        let scale = if name.contains("torque") { 4.0 } else { 15.0 };
+        for k in 0..1500 {
+            // Random pushes held for 50 steps (0.5 s): long enough to reach and lean on an obstacle.
+            if k % 50 == 0 {
+                for x in push.iter_mut().take(n) {
+                    *x = rng.gen_range(-1.0..1.0) * scale;
+                }
+            }
+            let u: Vec<f64> = (0..n).map(|i| push[i] + (k as f64 * 0.05).sin()).collect();
+            let (a, b) = (on.step(&u), off.step(&u));
+            assert_eq!((a.q, a.dq), (b.q, b.dq), "{name}: step {k}");
+            assert_eq!(
+                (a.min_clearance.to_bits(), a.collided),
+                (b.min_clearance.to_bits(), b.collided),
+                "{name}: step {k}"
+            );
+            touched += a.collided as usize;
+            free += (a.min_clearance > 0.05) as usize;
+        }
+        // Both regimes must have been exercised: contact, and substeps far enough from it to be skipped.
+        assert!(
+            touched > 10,
+            "{name}: the arm touched something in only {touched} steps"
+        );
+        assert!(free > 10, "{name}: only {free} steps away from contact");
+    }
+}

@@ -109,3 +109,64 @@ fn joint_waypoint_entries_are_the_next_waypoints_joint_offsets() {
         }
     }
 }
+
+// Three quickstart draws from one 500k-step training run that the grid once passed and a generous planner search
+// could not solve. In each, the goal configuration sharing the start's grid component is one the planner never
+// aims at: outside the joint box (the first) or closer to contact than the margin (the others); its blocked cell
+// had borrowed a free neighbour's label. A cross-check of the grid against the planner (RRT*, Karaman & Frazzoli
+// 2011), as above; no outside source decides solvability.
+#[test]
+fn the_grid_rejects_goals_the_planner_cannot_aim_at() {
+    let (exp, ep) = quickstart_episode();
+    let v = &exp.variants[0];
+    let sim = ep.sim.clone();
+    let grid = ConnectivityGrid::build(&sim, v.plan.clearance_margin).unwrap();
+    let generous = feasibility_spec(&v.plan);
+    let draws = [
+        (
+            [-1.6887771957967854, -2.1670534113161355],
+            [-0.6728355084587261, 0.15648255782815187],
+        ),
+        (
+            [1.0037397633082143, -1.4890841537790724],
+            [0.11325679671484101, -0.23175778131628177],
+        ),
+        (
+            [0.7156019748397515, 0.20264314330841904],
+            [-0.1739466487812697, 0.47635655952212486],
+        ),
+    ];
+    for (k, (start, goal)) in draws.into_iter().enumerate() {
+        let mut q = [0.0; 6];
+        q[..2].copy_from_slice(&start);
+        assert!(
+            !grid.may_connect(&sim, &q, goal),
+            "draw {k} passed the grid"
+        );
+        let path = plan_path(
+            &sim,
+            &start,
+            goal,
+            &generous,
+            &mut ChaCha8Rng::seed_from_u64(k as u64),
+        );
+        assert!(path.fallback, "the generous planner solved draw {k}");
+    }
+}
+
+/// The process-wide grid is the grid `build` makes, built once for equal inputs and again for other obstacles.
+#[test]
+fn the_shared_grid_is_the_built_grid_and_is_built_once() {
+    let (exp, ep) = quickstart_episode();
+    let margin = exp.variants[0].plan.clearance_margin;
+    let mut sim = ep.sim.clone();
+    let a = ConnectivityGrid::shared(&sim, margin);
+    let b = ConnectivityGrid::shared(&sim.clone(), margin);
+    assert!(std::sync::Arc::ptr_eq(&a, &b));
+    assert_eq!(*a, ConnectivityGrid::build(&sim, margin));
+    sim.set_difficulty(1, 0.0);
+    let one = ConnectivityGrid::shared(&sim, margin);
+    assert!(!std::sync::Arc::ptr_eq(&a, &one));
+    assert_eq!(*one, ConnectivityGrid::build(&sim, margin));
+    assert_ne!(*one, *a, "one obstacle fewer must free cells");
+}

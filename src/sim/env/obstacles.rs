@@ -38,7 +38,7 @@ impl ArmEnv {
                 self.sc.workspace_max,
             ));
             if self.sc.self_collision {
-                for c2 in &caps[i + 2..n] {
+                for c2 in caps[..n].iter().skip(i + 2) {
                     all = all.min(capsule_capsule_distance(c, c2));
                 }
             }

@@ -2,7 +2,7 @@
 //! state and seeded in-episode events, read from TOML in two stages (raw serde structs, then a validated
 //! `Scenario` the rest of the code trusts). Every key is documented here and in README.md.
 
-use super::arm::{Arm, Link, MAX_JOINTS};
+use super::arm::{Arm, JointVec, Link, MAX_JOINTS};
 pub use super::contact::ContactMode;
 use super::geometry::{capsule_shape_distance, Capsule, Shape};
 use crate::config::{finite, positive, ConfigError};
@@ -204,6 +204,19 @@ impl Scenario {
     /// Number of joints.
     pub fn n(&self) -> usize {
         self.arm.n()
+    }
+
+    /// Lever arm of each joint, m/rad: the summed length of the links beyond it, twice that with self-collision
+    /// (where two links move relative to each other). Moving joint i by d moves no point of any link axis by more
+    /// than |d| times this, so every clearance changes by at most `sum_i |dq_i| R_i` between two configurations
+    /// (the bound `plan::ArmSpace` walks edges by and `ArmEnv::step` certifies contact-free substeps with).
+    pub fn lever_arms(&self) -> JointVec {
+        let factor = if self.self_collision { 2.0 } else { 1.0 };
+        let mut lever = [0.0; MAX_JOINTS];
+        for (i, l) in lever.iter_mut().enumerate().take(self.n()) {
+            *l = factor * self.arm.links[i..].iter().map(|k| k.length).sum::<f64>();
+        }
+        lever
     }
 
     /// Control step, s.
