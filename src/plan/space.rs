@@ -3,6 +3,10 @@
 //! the plane (whose shortest paths are known in closed form, so the planners can be checked against them).
 
 use crate::sim::{ArmEnv, JointVec, MAX_JOINTS};
+use std::cell::RefCell;
+
+/// Slots of `ArmSpace`'s clearance memo (a power of two).
+const MEMO_SLOTS: usize = 1024;
 
 /// A bounded configuration space with a collision checker. Configurations are `JointVec`s whose first
 /// `dim()` entries are used; the planners measure distance with the Euclidean norm over those entries.
@@ -115,6 +119,10 @@ pub struct ArmSpace<'a> {
     /// Lever arms R_i (times 2 with self-collision), m/rad.
     lever: JointVec,
     margin: f64,
+    /// Clearances computed already, by configuration (direct-mapped, made on first use). A search asks again
+    /// and again for the same configurations: a tree node's when edges from it are checked, a new node's when
+    /// its parent and rewired edges end there. The memo returns the very value computed before.
+    memo: RefCell<Vec<(JointVec, f64)>>,
 }
 
 impl<'a> ArmSpace<'a> {
@@ -138,6 +146,7 @@ impl<'a> ArmSpace<'a> {
             hi,
             lever,
             margin,
+            memo: RefCell::new(Vec::new()),
         }
     }
 
@@ -148,7 +157,23 @@ impl<'a> ArmSpace<'a> {
 
     /// Signed clearance of configuration q, m.
     pub fn clearance(&self, q: &JointVec) -> f64 {
-        self.env.clearances(&q[..self.n]).0
+        let mut h: u64 = 0;
+        for x in &q[..self.n] {
+            h = (h ^ x.to_bits()).wrapping_mul(0x9E37_79B9_7F4A_7C15);
+        }
+        let slot = (h >> (64 - MEMO_SLOTS.trailing_zeros())) as usize;
+        let mut memo = self.memo.borrow_mut();
+        if memo.is_empty() {
+            memo.resize(MEMO_SLOTS, ([0.0; MAX_JOINTS], f64::NAN));
+        }
+        let (key, c) = &mut memo[slot];
+        let same = (0..self.n).all(|i| key[i].to_bits() == q[i].to_bits());
+        if same && !c.is_nan() {
+            return *c;
+        }
+        let value = self.env.clearances(&q[..self.n]).0;
+        (*key, *c) = (*q, value);
+        value
     }
 
     /// Upper bound on how far any point of the arm moves along the segment a -> b, m.
@@ -248,5 +273,36 @@ mod tests {
         }
         // Both kinds occur in this scenario (the check is not vacuous).
         assert!(rejected > 50 && accepted > 50, "{rejected} {accepted}");
+    }
+
+    #[test]
+    fn the_clearance_memo_returns_what_the_environment_computes() {
+        // A definition check of a cache: every answer, first or repeated, equals the environment's own clearance
+        // bit for bit, including for configurations that share a slot and evict each other.
+        let sc = Scenario::load(std::path::Path::new(
+            "experiments/scenarios/table-2link-4obs.toml",
+        ))
+        .unwrap();
+        let env = ArmEnv::new(Arc::new(sc));
+        let space = ArmSpace::new(&env, 0.005);
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
+        let qs: Vec<JointVec> = (0..3 * MEMO_SLOTS)
+            .map(|_| env.sample_config(&mut rng))
+            .collect();
+        for round in 0..2 {
+            for (k, q) in qs.iter().enumerate() {
+                let direct = env.clearances(&q[..2]).0;
+                assert_eq!(
+                    space.clearance(q).to_bits(),
+                    direct.to_bits(),
+                    "round {round}, q {k}"
+                );
+                assert_eq!(
+                    space.clearance(q).to_bits(),
+                    direct.to_bits(),
+                    "again: round {round}, q {k}"
+                );
+            }
+        }
     }
 }
