@@ -230,6 +230,15 @@ mod tests {
     use rand::SeedableRng;
     use std::sync::Arc;
 
+    /// The shipped four-obstacle table scene.
+    fn four_obstacle_env() -> ArmEnv {
+        let sc = Scenario::load(std::path::Path::new(
+            "experiments/scenarios/table-2link-4obs.toml",
+        ))
+        .unwrap();
+        ArmEnv::new(Arc::new(sc))
+    }
+
     /// The exact minimum clearance along a segment, approximated from below-resolution sampling: 20 000 samples.
     fn dense_min(space: &ArmSpace, a: &JointVec, b: &JointVec) -> f64 {
         (0..=20_000)
@@ -244,11 +253,7 @@ mod tests {
         // behind adaptive collision checking of Schwarzer, Saha & Latombe, IEEE T-RO 2005; from memory).
         // Two-sided check against dense sampling: edges that dip into collision are rejected, edges whose
         // whole clearance stays above the margin are accepted.
-        let sc = Scenario::load(std::path::Path::new(
-            "experiments/scenarios/table-2link-4obs.toml",
-        ))
-        .unwrap();
-        let env = ArmEnv::new(Arc::new(sc));
+        let env = four_obstacle_env();
         let space = ArmSpace::new(&env, 0.005);
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(5);
         let (mut rejected, mut accepted) = (0, 0);
@@ -279,11 +284,7 @@ mod tests {
     fn the_clearance_memo_returns_what_the_environment_computes() {
         // A definition check of a cache: every answer, first or repeated, equals the environment's own clearance
         // bit for bit, including for configurations that share a slot and evict each other.
-        let sc = Scenario::load(std::path::Path::new(
-            "experiments/scenarios/table-2link-4obs.toml",
-        ))
-        .unwrap();
-        let env = ArmEnv::new(Arc::new(sc));
+        let env = four_obstacle_env();
         let space = ArmSpace::new(&env, 0.005);
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
         let qs: Vec<JointVec> = (0..3 * MEMO_SLOTS)

@@ -6,7 +6,8 @@ use rand_chacha::ChaCha8Rng;
 use std::path::Path;
 use termwise::curriculum::full_task_draw;
 use termwise::plan::connectivity::ConnectivityGrid;
-use termwise::plan::plan_path;
+use termwise::plan::{plan_path, PlanSpec};
+use termwise::sim::ArmEnv;
 use termwise::study::experiment;
 use termwise::task::observation::arm_obs_dim;
 use termwise::task::{begin_eval, feasibility_spec, Episode, START_CLEARANCE_FACTOR};
@@ -47,16 +48,20 @@ fn evaluation_episodes_all_have_a_collision_free_path_and_are_the_same_every_tim
     }
 }
 
+/// The quickstart's environment, its connectivity grid at the planning margin, and the generous planner budget.
+fn quickstart_grid_and_generous_spec() -> (ArmEnv, ConnectivityGrid, PlanSpec) {
+    let (exp, ep) = quickstart_episode();
+    let v = &exp.variants[0];
+    let grid = ConnectivityGrid::build(&ep.sim, v.plan.clearance_margin).unwrap();
+    (ep.sim.clone(), grid, feasibility_spec(&v.plan))
+}
+
 // No outside source decides solvability here: this is a cross-check of two independent methods (a resolution-
 // limited flood fill of the joint-space grid and the sampling planner, RRT* per Karaman & Frazzoli 2011, with a
 // generous budget), which must agree on every rejected draw.
 #[test]
 fn the_grid_rejects_only_draws_the_generous_planner_cannot_solve() {
-    let (exp, ep) = quickstart_episode();
-    let v = &exp.variants[0];
-    let sim = ep.sim.clone();
-    let grid = ConnectivityGrid::build(&sim, v.plan.clearance_margin).unwrap();
-    let generous = feasibility_spec(&v.plan);
+    let (sim, grid, generous) = quickstart_grid_and_generous_spec();
     let mut rng = ChaCha8Rng::seed_from_u64(99);
     let (mut rejected, mut agreed) = (0, 0);
     for _ in 0..120 {
@@ -117,11 +122,7 @@ fn joint_waypoint_entries_are_the_next_waypoints_joint_offsets() {
 // 2011), as above; no outside source decides solvability.
 #[test]
 fn the_grid_rejects_goals_the_planner_cannot_aim_at() {
-    let (exp, ep) = quickstart_episode();
-    let v = &exp.variants[0];
-    let sim = ep.sim.clone();
-    let grid = ConnectivityGrid::build(&sim, v.plan.clearance_margin).unwrap();
-    let generous = feasibility_spec(&v.plan);
+    let (sim, grid, generous) = quickstart_grid_and_generous_spec();
     let draws = [
         (
             [-1.6887771957967854, -2.1670534113161355],
