@@ -56,7 +56,7 @@ fn same_results_with_one_or_two_workers_and_resume_skips() {
             assert!(
                 std::fs::read_to_string(&speed)
                     .unwrap()
-                    .starts_with("iteration,env_steps,steps_per_s\n"),
+                    .starts_with("iteration,env_steps,steps_per_s,rollout_s,update_s\n"),
                 "{}",
                 speed.display()
             );
