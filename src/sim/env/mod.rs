@@ -10,12 +10,12 @@ use super::geometry::{
 };
 use super::scenario::{ControlMode, Integrator, Motion, Scenario};
 use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use std::sync::Arc;
 
 /// Clearance held back from a contact certificate (`ArmEnv::contact_free_radius`), m: far above the rounding of
 /// the distance computations (about 1e-16 m at these sizes), far below any contact depth that matters.
 const CERTIFICATE_SLACK: f64 = 1e-9;
-use rand_chacha::ChaCha8Rng;
-use std::sync::Arc;
 
 mod integrate;
 mod obstacles;
@@ -232,8 +232,9 @@ impl ArmEnv {
     /// How far the arm may move from configuration `q` before any contact can arise with the obstacles where
     /// they are now, the workspace boundary or itself, measured as `sum_i |dq_i| R_i` with the lever arms R_i
     /// (`Scenario::lever_arms`): its clearance less `CERTIFICATE_SLACK`. Clearance is 1-Lipschitz in the
-    /// position of the links' axes, which move at most that much. Zero (nothing certified) outside solid contact
-    /// mode or when less is left.
+    /// position of the links' axes, which move at most that much (the bound behind adaptive collision checking,
+    /// Schwarzer, Saha & Latombe, IEEE T-RO 2005; from memory; `plan::ArmSpace` walks edges by it). Zero
+    /// (nothing certified) outside solid contact mode or when less is left.
     fn contact_free_radius(&self, q: &JointVec) -> f64 {
         if self.sc.contact != ContactMode::Solid || !self.certify {
             return 0.0;
@@ -356,7 +357,7 @@ impl ArmEnv {
             self.physics_step(&mut s, &a);
             // The obstacles stand still within a control step, so a substep whose configuration lies within
             // the certified radius of the step's start has no contact: resolving it would find none and change
-            // nothing, and it is skipped (bit-identical; `tests/all/contact_certificate.rs`).
+            // nothing, and it is skipped (bit-identical; `tests/all/sim_contact.rs`).
             let moved: f64 = (0..n)
                 .map(|i| (s.q[i] - before.q[i]).abs() * self.lever[i])
                 .sum();
