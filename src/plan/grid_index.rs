@@ -24,6 +24,10 @@ pub struct GridIndex {
     dims: [usize; MAX_JOINTS],
     cells: Vec<Vec<u32>>,
     outside: Vec<u32>,
+    /// Two-dimensional spaces: every node's coordinates by id, one array per coordinate, for the linear
+    /// scan of small trees.
+    xs: Vec<f64>,
+    ys: Vec<f64>,
 }
 
 impl GridIndex {
@@ -50,6 +54,8 @@ impl GridIndex {
             dims,
             cells: vec![Vec::new(); total],
             outside: Vec::new(),
+            xs: Vec::new(),
+            ys: Vec::new(),
         }
     }
 
@@ -74,8 +80,17 @@ impl GridIndex {
         k
     }
 
-    /// Add node `id` at `q`.
+    /// Add node `id` at `q`. Ids are given in order: 0, 1, 2, ...
     pub fn insert(&mut self, id: usize, q: &JointVec) {
+        if self.n == 2 {
+            assert_eq!(
+                id,
+                self.xs.len(),
+                "grid index ids must be inserted in order"
+            );
+            self.xs.push(q[0]);
+            self.ys.push(q[1]);
+        }
         match self.cell_of(q) {
             Some(c) => {
                 let k = self.flat(&c);
@@ -153,14 +168,10 @@ impl GridIndex {
         };
         let Some(c) = cell else {
             // A small tree, or a query outside the grid: scan everything.
-            if n == 2 {
-                // The same sums as `sq_dist` (0 + a^2 + b^2 is a^2 + b^2 exactly), without its loop.
-                for (i, p) in nodes.iter().enumerate() {
-                    let (d0, d1) = (p[0] - q[0], p[1] - q[1]);
-                    let d2 = d0 * d0 + d1 * d1;
-                    if d2 < best.1 || (d2 == best.1 && i < best.0) {
-                        best = (i, d2);
-                    }
+            if n == 2 && self.xs.len() == nodes.len() {
+                let (i, d2) = nearest_2d(&self.xs, &self.ys, q[0], q[1]);
+                if d2 < best.1 || (d2 == best.1 && i < best.0) {
+                    best = (i, d2);
                 }
             } else {
                 for i in 0..nodes.len() {
@@ -216,6 +227,41 @@ impl GridIndex {
         }
         self.for_box(&lo_c, &hi_c, None, &mut |id| out.push(id));
     }
+}
+
+/// The nearest of the points `(xs[i], ys[i])` to `(q0, q1)` and its squared distance, ties to the lowest
+/// index: the smallest squared distance first (eight running minima, which the compiler keeps in vector
+/// registers), then the first index that has it. The sums are `sq_dist`'s (0 + a^2 + b^2 is a^2 + b^2
+/// exactly), so the answer is the linear scan's, bit for bit. (usize::MAX, inf) when no distance is below
+/// infinity.
+fn nearest_2d(xs: &[f64], ys: &[f64], q0: f64, q1: f64) -> (usize, f64) {
+    const LANES: usize = 8;
+    let d2 = |x: f64, y: f64| {
+        let (d0, d1) = (x - q0, y - q1);
+        d0 * d0 + d1 * d1
+    };
+    let mut lanes = [f64::INFINITY; LANES];
+    let (xc, yc) = (xs.chunks_exact(LANES), ys.chunks_exact(LANES));
+    let (xr, yr) = (xc.remainder(), yc.remainder());
+    for (x, y) in xc.zip(yc) {
+        for l in 0..LANES {
+            let d = d2(x[l], y[l]);
+            lanes[l] = if d < lanes[l] { d } else { lanes[l] };
+        }
+    }
+    let mut min = f64::INFINITY;
+    for d in lanes
+        .into_iter()
+        .chain(xr.iter().zip(yr).map(|(&x, &y)| d2(x, y)))
+    {
+        min = if d < min { d } else { min };
+    }
+    if min < f64::INFINITY {
+        if let Some(i) = xs.iter().zip(ys).position(|(&x, &y)| d2(x, y) == min) {
+            return (i, min);
+        }
+    }
+    (usize::MAX, f64::INFINITY)
 }
 
 /// Squared Euclidean distance over the first `n` coordinates (the same sum, in the same order, as

@@ -154,7 +154,8 @@ pub struct VariantRecord {
     pub eval_unsolved: u64,
 }
 
-/// run.json: a run's status, heartbeat and counters, rewritten after every iteration.
+/// run.json: a run's status, heartbeat and counters, rewritten while the run goes on (after every evaluation
+/// and at least every `study::run::RECORD_EVERY_S` seconds) and when it ends.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct RunRecord {
     pub study: String,

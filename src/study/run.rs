@@ -8,7 +8,7 @@ use super::StudyError;
 use crate::learn::checkpoint::TrainedFor;
 use crate::learn::{Environment, IterationStats, LearnError, Policy, Trainer};
 use crate::results::{self, EvalRow, RunRecord, RunStatus, SpeedRow, TermTable, TrainingRow};
-use crate::task::{EvalSummary, RunShared, TaskEnv};
+use crate::task::{EvalEpisodes, EvalSummary, RunShared, TaskEnv};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, Mutex};
@@ -83,10 +83,23 @@ pub struct RunProgress {
 
 /// Evaluate a deterministic policy on the study's fixed evaluation episodes.
 pub fn evaluate_policy(exp: &Experiment, v: &VariantSpec, policy: &Policy) -> EvalSummary {
+    evaluate_policy_on(&mut eval_episodes(exp, v), exp, policy)
+}
+
+/// The study's evaluation episodes under variant `v`, their starts kept across evaluations.
+pub fn eval_episodes(exp: &Experiment, v: &VariantSpec) -> EvalEpisodes {
+    EvalEpisodes::new(v.episode(), exp.study.eval_seed)
+}
+
+/// `evaluate_policy` on evaluation episodes whose starts earlier evaluations kept.
+pub fn evaluate_policy_on(
+    evals: &mut EvalEpisodes,
+    exp: &Experiment,
+    policy: &Policy,
+) -> EvalSummary {
     let mut act =
         |_: &crate::task::Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
-    let episodes = exp.study.eval_episodes as u64;
-    crate::task::evaluate(&mut v.episode(), exp.study.eval_seed, episodes, &mut act)
+    evals.evaluate(exp.study.eval_episodes as u64, &mut act)
 }
 
 /// Redraws the study's evaluation episodes need under variant `v` (rejected draws, episodes left unsolved).
@@ -195,6 +208,9 @@ pub fn training_row(st: &IterationStats) -> TrainingRow {
     }
 }
 
+/// Longest time between two writes of a running run's record (run.json), seconds of wall time.
+pub const RECORD_EVERY_S: f64 = 1.0;
+
 /// Execute one run to completion (or interruption / divergence), writing its folder as it goes.
 pub fn execute(
     exp: &Experiment,
@@ -238,11 +254,12 @@ pub fn execute(
     let meta = trained_for(exp, v, spec);
     let mut best_success = -1.0;
     let level = |sh: &Arc<Mutex<RunShared>>| sh.lock().expect("run state").curriculum.level();
+    let mut evals = eval_episodes(exp, v);
     let mut evaluate = |trainer: &Trainer,
                         tables: &mut RunTables,
                         best_success: &mut f64|
      -> Result<(), StudyError> {
-        let s = evaluate_policy(exp, v, trainer.policy());
+        let s = evaluate_policy_on(&mut evals, exp, trainer.policy());
         let lv = level(&shared);
         on_progress(&RunProgress {
             env_steps: trainer.env_steps(),
@@ -267,6 +284,7 @@ pub fn execute(
     let mut next_eval = every;
     let mut status = RunStatus::Done;
     let mut message = None;
+    let mut last_record = Instant::now();
     while trainer.env_steps() < budget {
         if stop.load(Ordering::SeqCst) {
             status = RunStatus::Interrupted;
@@ -283,7 +301,8 @@ pub fn execute(
             }
             Err(e) => return Err(StudyError::Run(format!("{}: {e}", spec.dir.display()))),
         }
-        if trainer.env_steps() >= next_eval || trainer.env_steps() >= budget {
+        let evaluated = trainer.env_steps() >= next_eval || trainer.env_steps() >= budget;
+        if evaluated {
             evaluate(&trainer, &mut tables, &mut best_success)?;
             while next_eval <= trainer.env_steps() {
                 next_eval += every;
@@ -295,7 +314,12 @@ pub fn execute(
             (record.redraws, record.unsolved, record.episodes) =
                 (sh.redraws, sh.unsolved, sh.episodes);
         }
-        results::write_run(&spec.dir, &record)?;
+        // run.json is synced to disk on every write; once a second is enough for `status` and the locks
+        // (their stale limits are minutes), and the last write below always happens.
+        if evaluated || last_record.elapsed().as_secs_f64() >= RECORD_EVERY_S {
+            results::write_run(&spec.dir, &record)?;
+            last_record = Instant::now();
+        }
     }
     let last = tables.evaluations.last().map(|r| r.env_steps);
     if status == RunStatus::Interrupted && last != Some(trainer.env_steps()) {

@@ -45,6 +45,17 @@ pub fn feasibility_spec(plan: &PlanSpec) -> PlanSpec {
     }
 }
 
+/// An episode start chosen by `Episode::choose_feasible`: the draw, its reference path, the redraws it took,
+/// and the states of the episode's planner and noise draws after the choice.
+#[derive(Clone, Debug)]
+pub struct ChosenStart {
+    draw: EpisodeDraw,
+    path: ReferencePath,
+    pub redraws: Redraws,
+    plan_rng: ChaCha8Rng,
+    noise_rng: ChaCha8Rng,
+}
+
 /// One episode of the task: simulator + reference path + reward composer + metrics.
 pub struct Episode {
     pub sim: ArmEnv,
@@ -159,6 +170,20 @@ impl Episode {
         draw: &mut dyn FnMut(&ArmEnv, &mut ChaCha8Rng) -> EpisodeDraw,
         rng: &mut ChaCha8Rng,
     ) -> Redraws {
+        let chosen = self.choose_feasible(draw, rng);
+        self.begin_chosen(&chosen, rng);
+        chosen.redraws
+    }
+
+    /// The drawing and planning of `begin_feasible`, without beginning the episode: what `begin_chosen` needs
+    /// to begin it. Depends only on the draws of `rng` and on the episode's settings (scenario, planner,
+    /// observation and waypoint source play no part before the episode begins), so an episode that repeats
+    /// (an evaluation episode) can keep the result and begin again from it without planning again.
+    pub fn choose_feasible(
+        &mut self,
+        draw: &mut dyn FnMut(&ArmEnv, &mut ChaCha8Rng) -> EpisodeDraw,
+        rng: &mut ChaCha8Rng,
+    ) -> ChosenStart {
         let n = self.sim.n();
         let mut redraws = Redraws::default();
         loop {
@@ -192,11 +217,25 @@ impl Episode {
             }
             if !path.fallback || redraws.redraws >= MAX_REDRAWS {
                 redraws.unsolved = path.fallback;
-                self.begin_with_path(&d, path, rng);
-                return redraws;
+                return ChosenStart {
+                    draw: d,
+                    path,
+                    redraws,
+                    plan_rng: self.plan_rng.clone(),
+                    noise_rng: self.noise_rng.clone(),
+                };
             }
             redraws.redraws += 1;
         }
+    }
+
+    /// Begin the episode `choose_feasible` chose, exactly as `begin_feasible` would have (the planner's and
+    /// the noise's draws go on from where the choice left them; `rng` from where it left `rng`).
+    pub fn begin_chosen(&mut self, c: &ChosenStart, rng: &mut ChaCha8Rng) {
+        self.sim.set_difficulty(c.draw.obstacles, c.draw.jump_rate);
+        self.plan_rng = c.plan_rng.clone();
+        self.noise_rng = c.noise_rng.clone();
+        self.begin_with_path(&c.draw, c.path.clone(), rng);
     }
 
     /// Seed the planner's draws and the waypoint noise's for one episode.
@@ -366,5 +405,42 @@ impl Episode {
             let c = clearance_obs_dim(&self.sim);
             observe_clearance(&self.sim, &mut out[d..d + c]);
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::study::experiment;
+    use std::path::Path;
+
+    // The reference is the definition itself (no outside source): beginning from a kept choice must leave the
+    // episode exactly as `begin_feasible` leaves it, the planner's and the noise's draws included (replans
+    // after scenario events and degraded waypoints draw from them), whatever the episode ran in between.
+    #[test]
+    fn a_kept_choice_begins_the_episode_begin_feasible_begins() {
+        let exp = experiment::load(Path::new("experiments/quickstart.toml")).unwrap();
+        let v = &exp.variants[0];
+        let mut draw =
+            |sim: &ArmEnv, rng: &mut ChaCha8Rng| crate::curriculum::full_task_draw(sim, rng);
+        let mut direct = v.episode();
+        let mut rng_direct = ChaCha8Rng::seed_from_u64(5);
+        direct.begin_feasible(&mut draw, &mut rng_direct);
+
+        let mut kept = v.episode();
+        let mut rng_kept = ChaCha8Rng::seed_from_u64(5);
+        let choice = kept.choose_feasible(&mut draw, &mut rng_kept);
+        // Another episode in between moves every draw on.
+        kept.begin_feasible(&mut draw, &mut ChaCha8Rng::seed_from_u64(9));
+        assert_ne!(kept.plan_rng, direct.plan_rng);
+        kept.begin_chosen(&choice, &mut rng_kept);
+
+        assert_eq!(rng_kept, rng_direct);
+        assert_eq!(kept.plan_rng, direct.plan_rng);
+        assert_eq!(kept.noise_rng, direct.noise_rng);
+        assert_eq!(kept.path, direct.path);
+        assert_eq!(kept.sim.state().q, direct.sim.state().q);
+        assert_eq!(kept.sim.goal(), direct.sim.goal());
+        assert_eq!(kept.sim.obstacles(), direct.sim.obstacles());
     }
 }

@@ -13,8 +13,10 @@ pub mod trajectory;
 pub mod waypoints;
 
 pub use env::{RunShared, TaskEnv};
-pub use episode::{feasibility_spec, Episode, Redraws, MAX_REDRAWS, START_CLEARANCE_FACTOR};
-pub use eval::{baseline_actor, begin_eval, eval_redraws, evaluate, run_episode, Actor};
+pub use episode::{
+    feasibility_spec, ChosenStart, Episode, Redraws, MAX_REDRAWS, START_CLEARANCE_FACTOR,
+};
+pub use eval::{baseline_actor, begin_eval, eval_redraws, run_episode, Actor, EvalEpisodes};
 pub use metrics::{rms_per_joint, EpisodeMetrics, EvalSummary};
 pub use observation::ObservationSpec;
 pub use probe::{evaluate_probe, ProbeCondition, ProbeOutcome};

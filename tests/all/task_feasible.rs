@@ -10,7 +10,9 @@ use termwise::plan::{plan_path, PlanSpec};
 use termwise::sim::ArmEnv;
 use termwise::study::experiment;
 use termwise::task::observation::arm_obs_dim;
-use termwise::task::{begin_eval, feasibility_spec, Episode, START_CLEARANCE_FACTOR};
+use termwise::task::{
+    begin_eval, feasibility_spec, run_episode, Episode, EvalEpisodes, START_CLEARANCE_FACTOR,
+};
 
 fn quickstart_episode() -> (experiment::Experiment, Episode) {
     let exp = experiment::load(Path::new("experiments/quickstart.toml")).unwrap();
@@ -45,6 +47,42 @@ fn evaluation_episodes_all_have_a_collision_free_path_and_are_the_same_every_tim
     for j in 0..exp.study.eval_episodes as u64 {
         begin_eval(&mut ep, exp.study.eval_seed, j);
         assert_eq!((ep.sim.state().q, ep.sim.goal()), firsts[j as usize]);
+    }
+}
+
+// The reference is the definition itself (no outside source): a kept start must begin the very episode a new
+// draw begins. The moving-goal study's goal jumps make the episodes replan mid-way, from the planner's draws as
+// the kept choice left them. The controller is an arbitrary stateless map from observation to action (a
+// policy is stateless too), so episodes differ only through what they began with.
+#[test]
+fn kept_evaluation_starts_begin_the_same_episodes_as_new_draws() {
+    let exp = experiment::load(Path::new("experiments/moving-goal.toml")).unwrap();
+    let v = &exp.variants[0];
+    let episodes = 30;
+    let mut act = |_: &Episode, obs: &[f32], a: &mut [f32]| {
+        for (i, x) in a.iter_mut().enumerate() {
+            *x = (obs[i] - 0.5 * obs[obs.len() - 1 - i]).clamp(-1.0, 1.0);
+        }
+    };
+    let fresh: Vec<String> = (0..episodes)
+        .map(|j| {
+            let m = run_episode(&mut v.episode(), exp.study.eval_seed, j, &mut act);
+            format!("{m:?}")
+        })
+        .collect();
+    assert!(
+        fresh.iter().any(|m| !m.contains("replans: 0,")),
+        "no episode replanned: the check would not reach the kept planner draws"
+    );
+    let mut kept = EvalEpisodes::new(v.episode(), exp.study.eval_seed);
+    for pass in 0..2 {
+        // The first pass chooses and keeps the starts, the second begins from the kept ones.
+        let got: Vec<String> = kept
+            .run(episodes, &mut act)
+            .iter()
+            .map(|m| format!("{m:?}"))
+            .collect();
+        assert_eq!(got, fresh, "pass {pass}");
     }
 }
 
