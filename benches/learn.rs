@@ -2,14 +2,19 @@
 //! 128 steps, 10 epochs, minibatch 256, 64x64 tanh networks) on the default 2-link reaching
 //! scenario, with the fused update path and with the candle autograd path, reported as
 //! environment steps per second with a printed breakdown (rollout steps/s, update samples/s,
-//! end-to-end env-steps/s); plus its parts — the fused rollout forward, GAE, and one minibatch
-//! loss-and-gradients at several minibatch sizes by both paths.
+//! end-to-end env-steps/s); the same iteration on the quickstart study's own task (its
+//! environments, with obstacles, planned reference paths and 45 observation entries, built as a
+//! run builds them), which shows what a study's task adds before its evaluations and files; plus
+//! the iteration's parts — the fused rollout forward, GAE, and one minibatch loss-and-gradients at
+//! several minibatch sizes by both paths.
 
 #[allow(dead_code)] // shared with the tests; the bench uses part of it
 #[path = "../tests/all/common/reach_env.rs"]
 mod reach_env;
 
 use std::hint::black_box;
+use std::path::Path;
+use std::sync::{Arc, Mutex};
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use rand::SeedableRng;
@@ -20,6 +25,8 @@ use termwise::learn::gae::{advantages, Segment};
 use termwise::learn::kernels::KernelPath;
 use termwise::learn::ppo::{loss_and_grads, Minibatch};
 use termwise::learn::{pin_kernel_threads, Mlp, NoObserver, PpoConfig, Trainer};
+use termwise::study::{experiment, run};
+use termwise::task::RunShared;
 
 /// The calling thread's CPU time in seconds (`CLOCK_THREAD_CPUTIME_ID`, Linux; elsewhere wall
 /// time since the first call).
@@ -60,49 +67,69 @@ fn iteration(c: &mut Criterion) {
             fused_update: fused,
             ..PpoConfig::default()
         };
-        let (batch, epochs) = (cfg.batch_size() as u64, cfg.epochs as f64);
-        let mut tr = Trainer::new(cfg, reach_envs(16, Goals::Random, 3), 3).expect("trainer");
-        tr.iterate(&mut NoObserver).expect("warm-up");
-        let mut g = c.benchmark_group("ppo_iteration");
-        g.throughput(Throughput::Elements(batch));
-        g.sample_size(20);
-        g.bench_function(format!("{name}_reach2link_16envs_x128"), |b| {
-            b.iter(|| black_box(tr.iterate(&mut NoObserver).expect("iterate")))
-        });
-        g.finish();
-        // Breakdown from the trainer's own timers over 20 more iterations.
-        let (mut ro, mut up, mut cpu) = (0.0, 0.0, 0.0);
-        let k = 20.0;
-        for _ in 0..20 {
-            let c0 = thread_cpu_seconds();
-            let s = tr.iterate(&mut NoObserver).expect("iterate");
-            cpu += thread_cpu_seconds() - c0;
-            ro += s.rollout_seconds;
-            up += s.update_seconds;
-        }
-        let b = batch as f64;
-        println!(
-            "{name} update ({} kernels), per iteration of {batch} steps: rollout {:.1} ms ({:.0} steps/s), update {:.1} ms \
-             ({:.0} samples/s through {epochs} epochs), end to end {:.0} env-steps/s",
-            KernelPath::active().name(),
-            ro / k * 1e3,
-            k * b / ro,
-            up / k * 1e3,
-            k * b * epochs / up,
-            k * b / (ro + up)
-        );
-        // On a shared machine the wall figures include time the thread spent descheduled; its
-        // own CPU time does not (the update's share split as in wall time).
-        let share = cpu / (ro + up);
-        println!(
-            "{name} update, thread CPU time: {:.1} ms per iteration (rollout {:.1} ms, update {:.1} ms), \
-             end to end {:.0} env-steps/s; CPU share {share:.2}",
-            cpu / k * 1e3,
-            ro * share / k * 1e3,
-            up * share / k * 1e3,
-            k * b / cpu
-        );
+        let tr = Trainer::new(cfg, reach_envs(16, Goals::Random, 3), 3).expect("trainer");
+        measure(c, &format!("{name}_reach2link_16envs_x128"), name, tr);
     }
+    // The quickstart's first variant, seed 0, as `termwise run` builds its environments and learner.
+    let exp = experiment::load(Path::new("experiments/quickstart.toml")).expect("quickstart");
+    let v = &exp.variants[0];
+    let mut cfg = v.learner.clone();
+    cfg.lr_decay_steps = exp.study.budget as u64;
+    let seed = run::run_seed(&exp, v, 0);
+    let shared = Arc::new(Mutex::new(RunShared::new(v.curriculum.build())));
+    let tr = Trainer::new(cfg, run::build_envs(v, seed, &shared), seed).expect("trainer");
+    measure(
+        c,
+        "fused_quickstart_task_16envs_x128",
+        "quickstart task, fused",
+        tr,
+    );
+}
+
+/// Time `tr`'s iterations with criterion as `ppo_iteration/<id>`, then print the breakdown from the
+/// trainer's own timers, labelled `label`.
+fn measure(c: &mut Criterion, id: &str, label: &str, mut tr: Trainer) {
+    let (batch, epochs) = (tr.config().batch_size() as u64, tr.config().epochs as f64);
+    tr.iterate(&mut NoObserver).expect("warm-up");
+    let mut g = c.benchmark_group("ppo_iteration");
+    g.throughput(Throughput::Elements(batch));
+    g.sample_size(20);
+    g.bench_function(id, |b| {
+        b.iter(|| black_box(tr.iterate(&mut NoObserver).expect("iterate")))
+    });
+    g.finish();
+    // Breakdown from the trainer's own timers over 20 more iterations.
+    let (mut ro, mut up, mut cpu) = (0.0, 0.0, 0.0);
+    let k = 20.0;
+    for _ in 0..20 {
+        let c0 = thread_cpu_seconds();
+        let s = tr.iterate(&mut NoObserver).expect("iterate");
+        cpu += thread_cpu_seconds() - c0;
+        ro += s.rollout_seconds;
+        up += s.update_seconds;
+    }
+    let b = batch as f64;
+    println!(
+        "{label} update ({} kernels), per iteration of {batch} steps: rollout {:.1} ms ({:.0} steps/s), update {:.1} ms \
+         ({:.0} samples/s through {epochs} epochs), end to end {:.0} env-steps/s",
+        KernelPath::active().name(),
+        ro / k * 1e3,
+        k * b / ro,
+        up / k * 1e3,
+        k * b * epochs / up,
+        k * b / (ro + up)
+    );
+    // On a shared machine the wall figures include time the thread spent descheduled; its
+    // own CPU time does not (the update's share split as in wall time).
+    let share = cpu / (ro + up);
+    println!(
+        "{label} update, thread CPU time: {:.1} ms per iteration (rollout {:.1} ms, update {:.1} ms), \
+         end to end {:.0} env-steps/s; CPU share {share:.2}",
+        cpu / k * 1e3,
+        ro * share / k * 1e3,
+        up * share / k * 1e3,
+        k * b / cpu
+    );
 }
 
 fn parts(c: &mut Criterion) {
