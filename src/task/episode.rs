@@ -170,13 +170,15 @@ impl Episode {
         draw: &mut dyn FnMut(&ArmEnv, &mut ChaCha8Rng) -> EpisodeDraw,
         rng: &mut ChaCha8Rng,
     ) -> Redraws {
+        // The choice leaves the difficulty and the planner's and noise's draws as `begin_chosen` would set
+        // them, so the path moves in without a copy.
         let chosen = self.choose_feasible(draw, rng);
-        self.begin_chosen(&chosen, rng);
+        self.begin_with_path(&chosen.draw, chosen.path, rng);
         chosen.redraws
     }
 
     /// The drawing and planning of `begin_feasible`, without beginning the episode: what `begin_chosen` needs
-    /// to begin it. Depends only on the draws of `rng` and on the episode's settings (scenario, planner,
+    /// to begin it. Depends only on the draws of `rng` and on the episode's scenario and planner settings (its
     /// observation and waypoint source play no part before the episode begins), so an episode that repeats
     /// (an evaluation episode) can keep the result and begin again from it without planning again.
     pub fn choose_feasible(
