@@ -50,7 +50,7 @@ multiversion! {
     mv_tanh => tanh_body(x: &mut [f32]);
     mv_tanh_grad => tanh_grad_body(d: &mut [f32], h: &[f32]);
     mv_column_sums => column_sums_body(g: &mut [f32], rows: &[f32]);
-    mv_adam => adam_body(theta: &mut [f32], g: &[f32], m: &mut [f64], v: &mut [f64], k: &AdamK);
+    mv_adam => adam_body_fma(theta: &mut [f32], g: &[f32], m: &mut [f64], v: &mut [f64], k: &AdamK);
     mv_sum_squares => sum_squares_body(x: &[f32]) -> f64;
     mv_scale => scale_body(x: &mut [f32], s: f32);
 }
@@ -354,6 +354,7 @@ fn column_sums_body(g: &mut [f32], rows: &[f32]) {
     }
 }
 
+/// The portable path's Adam update: the statement of `adam::Adam::step`, term by term.
 #[inline(always)]
 fn adam_body(theta: &mut [f32], g: &[f32], m: &mut [f64], v: &mut [f64], k: &AdamK) {
     let (b1, b2, c1, c2, lr, eps) = (k.b1, k.b2, k.c1, k.c2, k.lr, k.eps);
@@ -369,6 +370,96 @@ fn adam_body(theta: &mut [f32], g: &[f32], m: &mut [f64], v: &mut [f64], k: &Ada
         let v_hat = vi / c2;
         theta[i] = (theta[i] as f64 - lr * m_hat / (v_hat.sqrt() + eps)) as f32;
     }
+}
+
+/// Elements per block of [`adam_body_fma`]: the moments of a block are updated, checked, then used.
+const ADAM_BLOCK: usize = 128;
+
+/// The vector paths' Adam update, bit for bit [`adam_body`]: the two bias corrections `m / c1` and
+/// `v / c2` (the same divisor for a whole tensor) are [`div_by_reciprocal`] instead of the divider, which
+/// the update waits on (one division and one square root per element remain). A block with a moment outside
+/// the range where that quotient is exact divides as `adam_body` does.
+#[inline(always)]
+fn adam_body_fma(theta: &mut [f32], g: &[f32], m: &mut [f64], v: &mut [f64], k: &AdamK) {
+    let (b1, b2, c1, c2, lr, eps) = (k.b1, k.b2, k.c1, k.c2, k.lr, k.eps);
+    let (y1, y2) = (1.0 / c1, 1.0 / c2);
+    if !(divisor_in_range(c1, y1) && divisor_in_range(c2, y2)) {
+        return adam_body(theta, g, m, v, k);
+    }
+    let n = theta.len().min(g.len()).min(m.len()).min(v.len());
+    let blocks = theta[..n]
+        .chunks_mut(ADAM_BLOCK)
+        .zip(g[..n].chunks(ADAM_BLOCK))
+        .zip(
+            m[..n]
+                .chunks_mut(ADAM_BLOCK)
+                .zip(v[..n].chunks_mut(ADAM_BLOCK)),
+        );
+    for ((theta, g), (m, v)) in blocks {
+        let mut out_of_range = false;
+        for ((m, v), &gi) in m.iter_mut().zip(v.iter_mut()).zip(g) {
+            let gi = gi as f64;
+            let mi = b1 * *m + (1.0 - b1) * gi;
+            let vi = b2 * *v + (1.0 - b2) * gi * gi;
+            *m = mi;
+            *v = vi;
+            out_of_range |= !(dividend_in_range(mi) & dividend_in_range(vi));
+        }
+        if out_of_range {
+            for ((t, &mi), &vi) in theta.iter_mut().zip(m.iter()).zip(v.iter()) {
+                let (m_hat, v_hat) = (mi / c1, vi / c2);
+                *t = (*t as f64 - lr * m_hat / (v_hat.sqrt() + eps)) as f32;
+            }
+        } else {
+            for ((t, &mi), &vi) in theta.iter_mut().zip(m.iter()).zip(v.iter()) {
+                let m_hat = div_by_reciprocal(mi, c1, y1);
+                let v_hat = div_by_reciprocal(vi, c2, y2);
+                *t = (*t as f64 - lr * m_hat / (v_hat.sqrt() + eps)) as f32;
+            }
+        }
+    }
+}
+
+/// Dividends whose [`div_by_reciprocal`] quotient is exact: +0, or a magnitude in [2^-400, 2^400) (no
+/// quotient or remainder comes near the subnormal or overflow range for a divisor that passes
+/// [`divisor_in_range`]). NaN, infinities, -0 and tiny values are left to the divider.
+#[inline(always)]
+#[allow(clippy::manual_range_contains)] // `&` of two comparisons keeps the loop branch-free
+fn dividend_in_range(a: f64) -> bool {
+    let x = a.abs();
+    ((x >= DIV_LO) & (x < DIV_HI)) | (a.to_bits() == 0)
+}
+
+/// Divisors (and their correctly rounded reciprocals) [`div_by_reciprocal`] takes: magnitudes in
+/// [2^-200, 2^200].
+#[inline(always)]
+fn divisor_in_range(b: f64, y: f64) -> bool {
+    let (b, y) = (b.abs(), y.abs());
+    (DIVISOR_LO..=DIVISOR_HI).contains(&b) && (DIVISOR_LO..=DIVISOR_HI).contains(&y)
+}
+
+/// 2^e for an exponent of a normal f64.
+const fn pow2(e: i32) -> f64 {
+    f64::from_bits(((1023 + e) as u64) << 52)
+}
+/// The ends of [`dividend_in_range`]'s magnitudes.
+const DIV_LO: f64 = pow2(-400);
+const DIV_HI: f64 = pow2(400);
+const DIVISOR_LO: f64 = pow2(-200);
+const DIVISOR_HI: f64 = pow2(200);
+
+/// `a / b` correctly rounded, given `y` = the correctly rounded `1 / b`, with fused multiply-adds only:
+/// `q0 = a y` is within 1.5 ulp of `a / b`; one correction `q1 = q0 + (a - b q0) y` brings it within
+/// 1 ulp; a second, `q1 + (a - b q1) y`, is then the correctly rounded quotient by Markstein's theorem
+/// (P. W. Markstein, "Computation of elementary functions on the IBM RISC System/6000 processor", IBM J.
+/// Res. Dev. 34(1), 1990; stated as: y within 1/2 ulp of 1/b and q within 1 ulp of a/b give
+/// RN(q + RN(a - bq) y) = RN(a/b), quoted from memory). Valid for round-to-nearest and operands that
+/// pass [`dividend_in_range`] and [`divisor_in_range`]; the kernel tests check it against the divider.
+#[inline(always)]
+pub(super) fn div_by_reciprocal(a: f64, b: f64, y: f64) -> f64 {
+    let q0 = a * y;
+    let q1 = (-b).mul_add(q0, a).mul_add(y, q0);
+    (-b).mul_add(q1, a).mul_add(y, q1)
 }
 
 #[inline(always)]

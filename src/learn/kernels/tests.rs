@@ -211,6 +211,132 @@ fn element_wise_loops_give_the_scalar_results_on_every_path() {
     }
 }
 
+/// A moment `m0` (found by a seeded search just above the subnormal range) whose decayed value
+/// `decay * m0` the reciprocal division gets wrong for the divisor `c`: what the range check is for.
+fn moment_the_fast_division_misses(decay: f64, c: f64, rng: &mut ChaCha8Rng) -> f64 {
+    let y = 1.0 / c;
+    (0..1_000_000)
+        .map(|_| f64::from_bits(rng.gen_range(1u64..1u64 << 55)))
+        .find(|&m0| {
+            let a = decay * m0;
+            div_by_reciprocal(a, c, y).to_bits() != (a / c).to_bits()
+        })
+        .expect("a dividend near the subnormal range that the reciprocal division misses")
+}
+
+#[test]
+fn adam_gives_the_scalar_statement_for_moments_the_fast_division_leaves_to_the_divider() {
+    // Blocks holding a tiny moment, -0, NaN or a huge one take the divider; the others the reciprocal. The
+    // scalar statement is Kingma & Ba 2015, Algorithm 1, with the bias corrections as divisions. (A 1-ulp
+    // error in a tiny moment's quotient would not show in the f32 parameter, so the range check itself is
+    // asserted to reject the moments the reciprocal division gets wrong.)
+    let mut rng = ChaCha8Rng::seed_from_u64(41);
+    let n = 5 * ADAM_BLOCK + 17;
+    let h = random(n, &mut rng);
+    for t in [1, 2, 50, 100] {
+        let k = AdamK {
+            b1: 0.9,
+            b2: 0.999,
+            c1: 1.0 - 0.9f64.powi(t),
+            c2: 1.0 - 0.999f64.powi(t),
+            lr: 3e-4,
+            eps: 1e-8,
+        };
+        let mut x = random(n, &mut rng);
+        let mut m0: Vec<f64> = (0..n).map(|_| rng.gen_range(-0.05..0.05)).collect();
+        let mut v0: Vec<f64> = (0..n).map(|_| rng.gen_range(0.0..0.05)).collect();
+        // Block 0: a tiny first moment and block 4 a tiny second one, each wrong on the fast path
+        // (gradient 0, so the moment is its decay).
+        m0[3] = moment_the_fast_division_misses(0.9, k.c1, &mut rng);
+        x[3] = 0.0;
+        v0[4 * ADAM_BLOCK + 2] = moment_the_fast_division_misses(0.999, k.c2, &mut rng);
+        x[4 * ADAM_BLOCK + 2] = 0.0;
+        assert!(
+            !dividend_in_range(0.9 * m0[3]) && !dividend_in_range(0.999 * v0[4 * ADAM_BLOCK + 2])
+        );
+        m0[ADAM_BLOCK + 5] = f64::NAN; // block 1
+        v0[2 * ADAM_BLOCK + 9] = 1e300; // block 2: above 2^400
+        m0[3 * ADAM_BLOCK + 1] = 0.0; // block 3: +0 moments with a +0 gradient stay on the fast path
+        v0[3 * ADAM_BLOCK + 1] = 0.0;
+        x[3 * ADAM_BLOCK + 1] = 0.0;
+        for p in supported() {
+            let (mut th, mut m, mut v) = (h.clone(), m0.clone(), v0.clone());
+            p.adam(&mut th, &x, &mut m, &mut v, &k);
+            for i in 0..n {
+                let g = x[i] as f64;
+                let mi = 0.9 * m0[i] + (1.0 - 0.9) * g;
+                let vi = 0.999 * v0[i] + (1.0 - 0.999) * g * g;
+                let want = (h[i] as f64 - 3e-4 * (mi / k.c1) / ((vi / k.c2).sqrt() + 1e-8)) as f32;
+                let same = th[i].to_bits() == want.to_bits() || (th[i].is_nan() && want.is_nan());
+                assert!(same, "{} t={t} adam {i}: {} vs {want}", p.name(), th[i]);
+            }
+        }
+    }
+}
+
+#[test]
+fn division_by_a_rounded_reciprocal_is_the_divider_bit_for_bit() {
+    // Markstein's theorem (IBM J. Res. Dev. 34(1), 1990, quoted from memory) makes `div_by_reciprocal`
+    // the correctly rounded quotient, which IEEE 754-2019 section 5.4.1 requires of `/`. Checked here on
+    // the divisors Adam uses (1 - beta^t for the usual betas, Kingma & Ba 2015) and random ones, with
+    // dividends across the whole accepted range, its ends and significands of all ones.
+    let mut rng = ChaCha8Rng::seed_from_u64(7);
+    let mut divisors: Vec<f64> = (1..=20_000)
+        .step_by(37)
+        .flat_map(|t| [1.0 - 0.9f64.powi(t), 1.0 - 0.999f64.powi(t)])
+        .collect();
+    divisors.extend((0..200).map(|_| {
+        let e: i32 = rng.gen_range(-200..200);
+        rng.gen_range(1.0f64..2.0) * pow2(e)
+    }));
+    divisors.extend([1.0, 3.0, 0.1, DIVISOR_LO, DIVISOR_HI / 2.0]);
+    let ones = f64::from_bits(0x3FFF_FFFF_FFFF_FFFF); // 2 - 2^-52
+    let mut checked = 0usize;
+    for &b in &divisors {
+        let y = 1.0 / b;
+        assert!(divisor_in_range(b, y), "{b}");
+        let below_hi = f64::from_bits(DIV_HI.to_bits() - 1);
+        let mut dividends = vec![
+            0.0,
+            DIV_LO,
+            below_hi,
+            -DIV_LO,
+            -below_hi,
+            ones,
+            -ones,
+            ones * DIV_LO,
+        ];
+        dividends.extend((0..2_000).map(|_| {
+            let e: i32 = rng.gen_range(-400..400);
+            let s = if rng.gen::<bool>() { 1.0 } else { -1.0 };
+            s * rng.gen_range(1.0f64..2.0) * pow2(e)
+        }));
+        for a in dividends {
+            assert!(dividend_in_range(a), "{a}");
+            let want = a / b;
+            let got = div_by_reciprocal(a, b, y);
+            assert_eq!(got.to_bits(), want.to_bits(), "{a} / {b}");
+            checked += 1;
+        }
+    }
+    assert!(checked > 1_000_000, "{checked}");
+    // What the range checks leave to the divider.
+    let below_lo = f64::from_bits(DIV_LO.to_bits() - 1);
+    for a in [
+        -0.0,
+        f64::NAN,
+        f64::INFINITY,
+        1e-300,
+        -1e300,
+        DIV_HI,
+        -DIV_HI,
+        below_lo,
+    ] {
+        assert!(!dividend_in_range(a), "{a}");
+    }
+    assert!(!divisor_in_range(1e-100, 1e100));
+}
+
 #[test]
 fn the_avx512_path_is_tested_where_the_cpu_has_it() {
     // The tests above run every supported path; this one makes sure AVX-512 is among them
