@@ -7,9 +7,11 @@
 //! Every path gives the same bits: each output of a product is accumulated in the same order
 //! with fused multiply-adds (the vector width only decides how many outputs are done at once),
 //! the narrow products reduce 16 fixed partial sums in a fixed tree, and the element-wise loops
-//! use no fused operations. So a study gives the same numbers on every node of a cluster,
-//! whatever its vector unit; the tests check the paths against each other bit for bit and
-//! against plain reference loops.
+//! use no fused operations, except where they compute an exactly rounded result that the plain
+//! operation gives too (Adam's bias corrections on the vector paths: a division by a correctly
+//! rounded reciprocal with two fused corrections, see [`div_by_reciprocal`]). So a study gives the
+//! same numbers on every node of a cluster, whatever its vector unit; the tests check the paths
+//! against each other bit for bit and against plain reference loops.
 //!
 //! The products:
 //! - [`KernelPath::bcast`]: `C[i][j] = init[j] + sum_k A(i, k) B[k][j]`, `A` read through any
@@ -50,6 +52,7 @@ multiversion! {
     mv_tanh => tanh_body(x: &mut [f32]);
     mv_tanh_grad => tanh_grad_body(d: &mut [f32], h: &[f32]);
     mv_column_sums => column_sums_body(g: &mut [f32], rows: &[f32]);
+    // The vector paths' Adam (the portable path calls `adam_body`, which gives the same bits).
     mv_adam => adam_body_fma(theta: &mut [f32], g: &[f32], m: &mut [f64], v: &mut [f64], k: &AdamK);
     mv_sum_squares => sum_squares_body(x: &[f32]) -> f64;
     mv_scale => scale_body(x: &mut [f32], s: f32);
