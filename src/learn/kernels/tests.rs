@@ -226,7 +226,7 @@ fn moment_the_fast_division_misses(decay: f64, c: f64, rng: &mut ChaCha8Rng) -> 
 
 #[test]
 fn adam_gives_the_scalar_statement_for_moments_the_fast_division_leaves_to_the_divider() {
-    // Blocks holding a tiny moment, -0, NaN or a huge one take the divider; the others the reciprocal. The
+    // Blocks holding a tiny moment, NaN or a huge one take the divider; the others the reciprocal. The
     // scalar statement is Kingma & Ba 2015, Algorithm 1, with the bias corrections as divisions. (A 1-ulp
     // error in a tiny moment's quotient would not show in the f32 parameter, so the range check itself is
     // asserted to reject the moments the reciprocal division gets wrong.)
