@@ -150,3 +150,23 @@ fn workspace_stops_allocating_after_the_first_minibatch() {
     loss_and_grads_into(&c.policy, &c.critic, &c.mb, &c.cfg, &mut ws, &mut out);
     assert_eq!(before, ptrs(&ws, &out));
 }
+
+#[test]
+fn transpose_into_is_the_transpose() {
+    // The definition of the transpose, wt[i][o] = w[o][i]; shapes with whole blocks of eight rows,
+    // a ragged last block, and fewer rows than a block.
+    for (rows, cols) in [(64, 48), (64, 64), (13, 5), (8, 1), (3, 7), (1, 1)] {
+        let w: Vec<f32> = (0..rows * cols).map(|k| k as f32 + 0.5).collect();
+        let mut wt = vec![f32::NAN; rows * cols];
+        super::transpose_into(&w, rows, cols, &mut wt);
+        for o in 0..rows {
+            for i in 0..cols {
+                assert_eq!(
+                    wt[i * rows + o],
+                    w[o * cols + i],
+                    "{rows}x{cols} at ({o}, {i})"
+                );
+            }
+        }
+    }
+}

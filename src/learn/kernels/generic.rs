@@ -124,9 +124,12 @@ pub(super) unsafe fn bcast_tile<S: Lanes, const MR: usize, const NV: usize, cons
     }
 }
 
-/// Rows in tiles of `MR` (the rest one by one), columns in blocks of up to `NVMAX` vectors.
+/// Rows in tiles of `MR` (`MR` at most 6; the remaining rows in one tile of their own, so no row is
+/// left to a one-row pass that reloads `B` for a single output row), columns in blocks of up to
+/// `NVMAX` vectors.
 #[inline(always)]
 pub(super) unsafe fn bcast_driver<S: Lanes, const MR: usize, const NVMAX: usize>(p: &Bcast) {
+    const { assert!(MR >= 1 && MR <= 6, "row tiles of 1 to 6") };
     let mut j0 = 0;
     while j0 < p.n {
         let cols = (p.n - j0).min(NVMAX * S::L);
@@ -137,9 +140,14 @@ pub(super) unsafe fn bcast_driver<S: Lanes, const MR: usize, const NVMAX: usize>
             bcast_nv::<S, MR>(p, i0, j0, nv, last);
             i0 += MR;
         }
-        while i0 < p.m {
-            bcast_nv::<S, 1>(p, i0, j0, nv, last);
-            i0 += 1;
+        match p.m - i0 {
+            0 => {}
+            1 => bcast_nv::<S, 1>(p, i0, j0, nv, last),
+            2 => bcast_nv::<S, 2>(p, i0, j0, nv, last),
+            3 => bcast_nv::<S, 3>(p, i0, j0, nv, last),
+            4 => bcast_nv::<S, 4>(p, i0, j0, nv, last),
+            5 => bcast_nv::<S, 5>(p, i0, j0, nv, last),
+            rest => unreachable!("{rest} rows left over by tiles of {MR} (at most 6)"),
         }
         j0 += cols;
     }

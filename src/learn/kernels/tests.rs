@@ -63,6 +63,8 @@ fn every_path_computes_the_broadcast_product_and_all_agree_bit_for_bit() {
         (256, 64, 2),
         (16, 64, 64),
         (7, 70, 13),
+        (9, 20, 7),
+        (11, 40, 9),
         (13, 33, 1),
         (1, 1, 5),
         (5, 17, 0),
@@ -76,6 +78,13 @@ fn every_path_computes_the_broadcast_product_and_all_agree_bit_for_bit() {
             let bias = random(n, &mut rng);
             for init in [None, Some(&bias[..])] {
                 let want = reference_product((m, n, k), init, &a, (a_rs, a_cs), &b, ldb);
+                // The documented order: each output is one chain of f32 fused multiply-adds in
+                // `kk` order from its init, whatever tile the output falls in.
+                let chain = |i: usize, j: usize| {
+                    (0..k).fold(init.map_or(0.0, |r| r[j]), |s, kk| {
+                        a[i * a_rs + kk * a_cs].mul_add(b[kk * ldb + j], s)
+                    })
+                };
                 let mut first: Option<Vec<f32>> = None;
                 for &p in &paths {
                     let ldc = n + 1;
@@ -92,6 +101,14 @@ fn every_path_computes_the_broadcast_product_and_all_agree_bit_for_bit() {
                     }
                     for (g, w) in got.iter().zip(&want) {
                         assert_close(*g, *w, k as f64, &ctx);
+                    }
+                    for (idx, g) in got.iter().enumerate() {
+                        let c = chain(idx / n, idx % n);
+                        assert_eq!(
+                            g.to_bits(),
+                            c.to_bits(),
+                            "{ctx}: output {idx} not the chain"
+                        );
                     }
                     match &first {
                         None => first = Some(got),
