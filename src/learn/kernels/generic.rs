@@ -82,17 +82,28 @@ impl Lanes for Portable {
 
 /// One register tile of [`super::KernelPath::bcast`]: `MR` rows x `NV` vectors (the last of which
 /// holds `last` valid lanes; all `L` when `FULL`, which keeps masks out of the inner loop)
-/// starting at row `i0`, column `j0`.
+/// starting at row `i0`, column `j0`, over the terms `kk` in `ks`. The first block of terms starts
+/// from `init` (or zero); a later one (`ks.start > 0`) from the partial sums the block before it
+/// stored in `C`, which are the f32 accumulators themselves, so each output is still one chain of
+/// fused multiply-adds in `kk` order.
 #[inline(always)]
 pub(super) unsafe fn bcast_tile<S: Lanes, const MR: usize, const NV: usize, const FULL: bool>(
     p: &Bcast,
     i0: usize,
     j0: usize,
     last: usize,
+    ks: std::ops::Range<usize>,
 ) {
     let cnt = |v: usize| if FULL || v + 1 != NV { S::L } else { last };
     let mut acc = [[S::zero(); NV]; MR];
-    if let Some(init) = p.init {
+    if ks.start > 0 {
+        for (r, row) in acc.iter_mut().enumerate() {
+            let crow = p.c.add((i0 + r) * p.ldc + j0);
+            for (v, x) in row.iter_mut().enumerate() {
+                *x = S::load(crow.add(v * S::L), cnt(v));
+            }
+        }
+    } else if let Some(init) = p.init {
         for v in 0..NV {
             let x = S::load(init.add(j0 + v * S::L), cnt(v));
             for row in acc.iter_mut() {
@@ -102,7 +113,7 @@ pub(super) unsafe fn bcast_tile<S: Lanes, const MR: usize, const NV: usize, cons
     }
     let a0 = p.a.add(i0 * p.a_rs);
     let b0 = p.b.add(j0);
-    for kk in 0..p.k {
+    for kk in ks {
         let brow = b0.add(kk * p.ldb);
         let mut bv = [S::zero(); NV];
         for (v, x) in bv.iter_mut().enumerate() {
@@ -124,6 +135,9 @@ pub(super) unsafe fn bcast_tile<S: Lanes, const MR: usize, const NV: usize, cons
     }
 }
 
+/// Terms per block of a long sum in [`bcast_driver`] (sums of at most `2 KC` terms run in one block).
+pub(super) const KC: usize = 64;
+
 /// Rows in tiles of `MR` (`MR` at most 6; the remaining rows in one tile of their own, so no row is
 /// left to a one-row pass that reloads `B` for a single output row), columns in blocks of up to
 /// `NVMAX` vectors.
@@ -135,19 +149,34 @@ pub(super) unsafe fn bcast_driver<S: Lanes, const MR: usize, const NVMAX: usize>
         let cols = (p.n - j0).min(NVMAX * S::L);
         let nv = cols.div_ceil(S::L);
         let last = cols - (nv - 1) * S::L;
-        let mut i0 = 0;
-        while i0 + MR <= p.m {
-            bcast_nv::<S, MR>(p, i0, j0, nv, last);
-            i0 += MR;
-        }
-        match p.m - i0 {
-            0 => {}
-            1 => bcast_nv::<S, 1>(p, i0, j0, nv, last),
-            2 => bcast_nv::<S, 2>(p, i0, j0, nv, last),
-            3 => bcast_nv::<S, 3>(p, i0, j0, nv, last),
-            4 => bcast_nv::<S, 4>(p, i0, j0, nv, last),
-            5 => bcast_nv::<S, 5>(p, i0, j0, nv, last),
-            rest => unreachable!("{rest} rows left over by tiles of {MR} (at most 6)"),
+        // Long sums in blocks of `KC` terms, every row tile per block: a block's rows of `B` stay in
+        // the first-level cache for all the tiles, where a weight gradient's whole `B` (a minibatch of
+        // 256 rows) would not.
+        let mut k0 = 0;
+        loop {
+            let k1 = if p.k > 2 * KC {
+                (k0 + KC).min(p.k)
+            } else {
+                p.k
+            };
+            let mut i0 = 0;
+            while i0 + MR <= p.m {
+                bcast_nv::<S, MR>(p, i0, j0, nv, last, k0..k1);
+                i0 += MR;
+            }
+            match p.m - i0 {
+                0 => {}
+                1 => bcast_nv::<S, 1>(p, i0, j0, nv, last, k0..k1),
+                2 => bcast_nv::<S, 2>(p, i0, j0, nv, last, k0..k1),
+                3 => bcast_nv::<S, 3>(p, i0, j0, nv, last, k0..k1),
+                4 => bcast_nv::<S, 4>(p, i0, j0, nv, last, k0..k1),
+                5 => bcast_nv::<S, 5>(p, i0, j0, nv, last, k0..k1),
+                rest => unreachable!("{rest} rows left over by tiles of {MR} (at most 6)"),
+            }
+            if k1 >= p.k {
+                break;
+            }
+            k0 = k1;
         }
         j0 += cols;
     }
@@ -160,16 +189,17 @@ pub(super) unsafe fn bcast_nv<S: Lanes, const MR: usize>(
     j0: usize,
     nv: usize,
     last: usize,
+    ks: std::ops::Range<usize>,
 ) {
     match (nv, last == S::L) {
-        (1, true) => bcast_tile::<S, MR, 1, true>(p, i0, j0, last),
-        (1, false) => bcast_tile::<S, MR, 1, false>(p, i0, j0, last),
-        (2, true) => bcast_tile::<S, MR, 2, true>(p, i0, j0, last),
-        (2, false) => bcast_tile::<S, MR, 2, false>(p, i0, j0, last),
-        (3, true) => bcast_tile::<S, MR, 3, true>(p, i0, j0, last),
-        (3, false) => bcast_tile::<S, MR, 3, false>(p, i0, j0, last),
-        (_, true) => bcast_tile::<S, MR, 4, true>(p, i0, j0, last),
-        (_, false) => bcast_tile::<S, MR, 4, false>(p, i0, j0, last),
+        (1, true) => bcast_tile::<S, MR, 1, true>(p, i0, j0, last, ks),
+        (1, false) => bcast_tile::<S, MR, 1, false>(p, i0, j0, last, ks),
+        (2, true) => bcast_tile::<S, MR, 2, true>(p, i0, j0, last, ks),
+        (2, false) => bcast_tile::<S, MR, 2, false>(p, i0, j0, last, ks),
+        (3, true) => bcast_tile::<S, MR, 3, true>(p, i0, j0, last, ks),
+        (3, false) => bcast_tile::<S, MR, 3, false>(p, i0, j0, last, ks),
+        (_, true) => bcast_tile::<S, MR, 4, true>(p, i0, j0, last, ks),
+        (_, false) => bcast_tile::<S, MR, 4, false>(p, i0, j0, last, ks),
     }
 }
 

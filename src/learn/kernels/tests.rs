@@ -53,9 +53,12 @@ fn every_path_computes_the_broadcast_product_and_all_agree_bit_for_bit() {
     let mut rng = ChaCha8Rng::seed_from_u64(11);
     let paths = supported();
     // Shapes of the learner (25 and 64 wide, minibatch 256, rollout 16, heads 1 and 2) and
-    // ragged ones that exercise every row and column tail.
+    // ragged ones that exercise every row and column tail; sums of more than 128 terms run in
+    // blocks of 64 (the last ones here of 3 and 1 terms).
     let shapes = [
         (256, 64, 25),
+        (7, 70, 131),
+        (13, 33, 129),
         (256, 64, 64),
         (64, 64, 256),
         (64, 25, 256),
