@@ -40,6 +40,8 @@ pub(super) trait Lanes {
     unsafe fn store(p: *mut f32, v: Self::V, cnt: usize);
     /// `a * b + c` with one rounding.
     unsafe fn fma(a: Self::V, b: Self::V, c: Self::V) -> Self::V;
+    /// `a + b`.
+    unsafe fn add(a: Self::V, b: Self::V) -> Self::V;
 }
 
 /// Plain-Rust lanes: eight f32 in an array, `f32::mul_add`.
@@ -75,6 +77,14 @@ impl Lanes for Portable {
         let mut r = [0.0; 8];
         for l in 0..8 {
             r[l] = a[l].mul_add(b[l], c[l]);
+        }
+        r
+    }
+    #[inline(always)]
+    unsafe fn add(a: [f32; 8], b: [f32; 8]) -> [f32; 8] {
+        let mut r = [0.0; 8];
+        for l in 0..8 {
+            r[l] = a[l] + b[l];
         }
         r
     }
@@ -252,5 +262,35 @@ pub(super) unsafe fn dots_driver<S: Lanes>(p: &Dots) {
             let d = dot16::<S>(arow, p.w.add(j * p.k), p.k);
             *p.c.add(i * p.n + j) = d + *p.bias.add(j);
         }
+    }
+}
+
+/// `g[j] = sum_i rows[i][j]` for `m` rows of `w` values (`rows[i][j] = rows[i * w + j]`), each column one
+/// chain of additions in row order starting from zero, as the plain loop `g += row` gives. The
+/// partial sums stay in registers: columns in blocks of up to `NV` vectors, every row per block (the
+/// plain loop stores and reloads `g` once per row, and each row then waits on the store before it).
+#[inline(always)]
+pub(super) unsafe fn column_sums_driver<S: Lanes, const NV: usize>(
+    g: *mut f32,
+    w: usize,
+    rows: *const f32,
+    m: usize,
+) {
+    let mut j0 = 0;
+    while j0 < w {
+        let cols = (w - j0).min(NV * S::L);
+        let nv = cols.div_ceil(S::L);
+        let cnt = |v: usize| (cols - v * S::L).min(S::L);
+        let mut acc = [S::zero(); NV];
+        for i in 0..m {
+            let row = rows.add(i * w + j0);
+            for (v, x) in acc.iter_mut().enumerate().take(nv) {
+                *x = S::add(*x, S::load(row.add(v * S::L), cnt(v)));
+            }
+        }
+        for (v, x) in acc.iter().enumerate().take(nv) {
+            S::store(g.add(j0 + v * S::L), *x, cnt(v));
+        }
+        j0 += cols;
     }
 }

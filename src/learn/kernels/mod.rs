@@ -51,7 +51,6 @@ macro_rules! multiversion {
 multiversion! {
     mv_tanh => tanh_body(x: &mut [f32]);
     mv_tanh_grad => tanh_grad_body(d: &mut [f32], h: &[f32]);
-    mv_column_sums => column_sums_body(g: &mut [f32], rows: &[f32]);
     // The vector paths' Adam (the portable path calls `adam_body`, which gives the same bits).
     mv_adam => adam_body_fma(theta: &mut [f32], g: &[f32], m: &mut [f64], v: &mut [f64], k: &AdamK);
     mv_sum_squares => sum_squares_body(x: &[f32]) -> f64;
@@ -281,9 +280,28 @@ impl KernelPath {
         elementwise!(self, mv_tanh_grad, tanh_grad_body(d, h))
     }
 
-    /// `g[j] = sum_i rows[i][j]` over the `rows.len() / g.len()` rows, in row order.
+    /// `g[j] = sum_i rows[i][j]` over the `rows.len() / g.len()` rows, in row order (each column one
+    /// chain of additions from zero, the plain loop `g = 0; for row { g += row }`).
     pub fn column_sums(self, g: &mut [f32], rows: &[f32]) {
-        elementwise!(self, mv_column_sums, column_sums_body(g, rows))
+        let w = g.len();
+        if w == 0 {
+            return;
+        }
+        let m = rows.len() / w;
+        let (gp, rp) = (g.as_mut_ptr(), rows.as_ptr());
+        // SAFETY: `m` whole rows of `w` values lie in `rows` and `g` holds `w`; a SIMD path runs only
+        // where the CPU has it.
+        unsafe {
+            match self.checked() {
+                KernelPath::Portable => column_sums_driver::<Portable, 4>(gp, w, rp, m),
+                #[cfg(target_arch = "x86_64")]
+                KernelPath::Avx2 => x86::column_sums_avx2(gp, w, rp, m),
+                #[cfg(target_arch = "x86_64")]
+                KernelPath::Avx512 => x86::column_sums_avx512(gp, w, rp, m),
+                #[cfg(not(target_arch = "x86_64"))]
+                _ => unreachable!(),
+            }
+        }
     }
 
     /// One Adam update of a tensor (f64 moments), see `adam::Adam::step`.
@@ -345,7 +363,8 @@ fn tanh_grad_body(d: &mut [f32], h: &[f32]) {
     d.iter_mut().zip(h).for_each(|(d, &h)| *d *= 1.0 - h * h);
 }
 
-#[inline(always)]
+/// The plain statement of [`KernelPath::column_sums`] (the tests' reference).
+#[cfg(test)]
 fn column_sums_body(g: &mut [f32], rows: &[f32]) {
     g.fill(0.0);
     if g.is_empty() {
@@ -491,7 +510,7 @@ mod x86 {
     //! The x86-64 instantiations: each entry point is compiled with its instruction set
     //! enabled and must only be called where the CPU has it.
 
-    use super::{bcast_driver, dots_driver, Bcast, Dots, Lanes};
+    use super::{bcast_driver, column_sums_driver, dots_driver, Bcast, Dots, Lanes};
     use std::arch::x86_64::*;
 
     /// AVX2 + FMA lanes (8 x f32).
@@ -527,6 +546,10 @@ mod x86 {
         #[inline(always)]
         unsafe fn fma(a: __m256, b: __m256, c: __m256) -> __m256 {
             _mm256_fmadd_ps(a, b, c)
+        }
+        #[inline(always)]
+        unsafe fn add(a: __m256, b: __m256) -> __m256 {
+            _mm256_add_ps(a, b)
         }
     }
 
@@ -571,6 +594,10 @@ mod x86 {
         unsafe fn fma(a: __m512, b: __m512, c: __m512) -> __m512 {
             _mm512_fmadd_ps(a, b, c)
         }
+        #[inline(always)]
+        unsafe fn add(a: __m512, b: __m512) -> __m512 {
+            _mm512_add_ps(a, b)
+        }
     }
 
     #[target_feature(enable = "avx2,fma")]
@@ -581,6 +608,16 @@ mod x86 {
     #[target_feature(enable = "avx512f,avx512vl,avx512bw,avx512dq,avx2,fma")]
     pub(super) unsafe fn bcast_avx512(p: &Bcast) {
         bcast_driver::<Avx512, 6, 4>(p)
+    }
+
+    #[target_feature(enable = "avx2,fma")]
+    pub(super) unsafe fn column_sums_avx2(g: *mut f32, w: usize, rows: *const f32, m: usize) {
+        column_sums_driver::<Avx2, 8>(g, w, rows, m)
+    }
+
+    #[target_feature(enable = "avx512f,avx512vl,avx512bw,avx512dq,avx2,fma")]
+    pub(super) unsafe fn column_sums_avx512(g: *mut f32, w: usize, rows: *const f32, m: usize) {
+        column_sums_driver::<Avx512, 4>(g, w, rows, m)
     }
 
     #[target_feature(enable = "avx2,fma")]

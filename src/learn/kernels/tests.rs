@@ -186,14 +186,34 @@ fn element_wise_loops_give_the_scalar_results_on_every_path() {
         for ((got, &v), &hv) in d.iter().zip(&x).zip(&h) {
             assert_eq!(got.to_bits(), (v * (1.0 - hv * hv)).to_bits());
         }
-        let mut g = vec![0.0f32; 7];
-        p.column_sums(&mut g, &x[..7 * 143]);
-        for (j, got) in g.iter().enumerate() {
-            let mut s = 0.0f32;
-            for i in 0..143 {
-                s += x[i * 7 + j];
+        // Column sums: one chain of additions per column in row order, for widths below one vector,
+        // of whole vectors, and beyond one register block (64 columns) with a ragged end.
+        for (w, rows) in [
+            (1, 1000),
+            (2, 500),
+            (7, 143),
+            (16, 62),
+            (64, 15),
+            (70, 14),
+            (129, 7),
+        ] {
+            let mut g = vec![f32::NAN; w];
+            p.column_sums(&mut g, &x[..w * rows]);
+            let mut want = vec![f32::NAN; w];
+            super::column_sums_body(&mut want, &x[..w * rows]);
+            for (j, got) in g.iter().enumerate() {
+                let mut s = 0.0f32;
+                for i in 0..rows {
+                    s += x[i * w + j];
+                }
+                assert_eq!(want[j].to_bits(), s.to_bits());
+                assert_eq!(
+                    got.to_bits(),
+                    s.to_bits(),
+                    "{} width {w} column {j}",
+                    p.name()
+                );
             }
-            assert_eq!(got.to_bits(), s.to_bits(), "{} column {j}", p.name());
         }
         // Sum of squares against the f64 sum in index order (rounding-level agreement).
         let exact: f64 = x.iter().map(|&v| v as f64 * v as f64).sum();

@@ -16,20 +16,28 @@ impl Trainer {
     pub(super) fn gather(&self, idx: &[usize], mb: &mut Minibatch) {
         let (o, a) = (self.obs_dim, self.act_dim);
         let b = &self.buf;
-        mb.len = idx.len();
-        mb.obs.clear();
-        mb.actions.clear();
-        mb.old_log_probs.clear();
-        mb.advantages.clear();
-        mb.targets.clear();
-        mb.old_values.clear();
-        for &i in idx {
-            mb.obs.extend_from_slice(&b.obs[i * o..(i + 1) * o]);
-            mb.actions.extend_from_slice(&b.actions[i * a..(i + 1) * a]);
-            mb.old_log_probs.push(b.log_probs[i]);
-            mb.advantages.push(b.advantages[i]);
-            mb.targets.push(b.targets[i]);
-            mb.old_values.push(b.values[i]);
+        let n = idx.len();
+        mb.len = n;
+        // Sized once (every minibatch but a short last one has the same length); every element is
+        // overwritten below, a field at a time.
+        mb.obs.resize(n * o, 0.0);
+        mb.actions.resize(n * a, 0.0);
+        for (v, src) in [
+            (&mut mb.old_log_probs, &b.log_probs),
+            (&mut mb.advantages, &b.advantages),
+            (&mut mb.targets, &b.targets),
+            (&mut mb.old_values, &b.values),
+        ] {
+            v.resize(n, 0.0);
+            v.iter_mut().zip(idx).for_each(|(x, &i)| *x = src[i]);
+        }
+        for (row, &i) in mb.obs.chunks_exact_mut(o).zip(idx) {
+            row.copy_from_slice(&b.obs[i * o..(i + 1) * o]);
+        }
+        for (row, &i) in mb.actions.chunks_exact_mut(a).zip(idx) {
+            for (x, &y) in row.iter_mut().zip(&b.actions[i * a..(i + 1) * a]) {
+                *x = y;
+            }
         }
         if self.cfg.normalize_advantages && idx.len() > 1 {
             let n = idx.len() as f64;
