@@ -58,6 +58,7 @@ fn every_path_computes_the_broadcast_product_and_all_agree_bit_for_bit() {
     let shapes = [
         (256, 64, 25),
         (7, 70, 131),
+        (100, 70, 131),
         (13, 33, 129),
         (256, 64, 64),
         (64, 64, 256),
