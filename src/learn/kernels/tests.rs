@@ -188,7 +188,8 @@ fn element_wise_loops_give_the_scalar_results_on_every_path() {
             assert_eq!(got.to_bits(), (v * (1.0 - hv * hv)).to_bits());
         }
         // Column sums: one chain of additions per column in row order, for widths below one vector,
-        // of whole vectors, and beyond one register block (64 columns) with a ragged end.
+        // of whole vectors, and beyond one register block (64 columns) with a ragged end. The reference
+        // is the sum's definition taken in row order (common practice; no outside source applies).
         for (w, rows) in [
             (1, 1000),
             (2, 500),

@@ -34,6 +34,7 @@ impl Trainer {
         for (row, &i) in mb.obs.chunks_exact_mut(o).zip(idx) {
             row.copy_from_slice(&b.obs[i * o..(i + 1) * o]);
         }
+        // An action row is one or two values: a plain loop, not a `memcpy` call per row.
         for (row, &i) in mb.actions.chunks_exact_mut(a).zip(idx) {
             for (x, &y) in row.iter_mut().zip(&b.actions[i * a..(i + 1) * a]) {
                 *x = y;
