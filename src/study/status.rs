@@ -115,6 +115,13 @@ pub fn study_status(
     now_unix: u64,
     stale_after_s: u64,
 ) -> Result<StudyStatus, StudyError> {
+    let study_file = dir.join(crate::results::STUDY_FILE);
+    if !study_file.exists() {
+        return Err(StudyError::Mismatch(format!(
+            "{} not found: is this a results folder written by `termwise run`?",
+            study_file.display()
+        )));
+    }
     let rec: StudyRecord = crate::results::read_study(dir)?;
     let mut cells = Vec::new();
     let order: Vec<(usize, u64)> = match &rec.racing {
@@ -392,6 +399,17 @@ pub fn cli_status(dir: &Path, stale_after_s: u64) -> Result<String, StudyError> 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_folder_without_study_json_is_bad_input_and_says_what_it_lacks() {
+        let dir =
+            std::env::temp_dir().join(format!("termwise-status-empty-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let e = study_status(&dir, 0, 600).unwrap_err();
+        std::fs::remove_dir_all(&dir).unwrap();
+        assert!(e.is_bad_input(), "{e}");
+        assert!(e.to_string().contains("study.json not found"), "{e}");
+    }
 
     #[test]
     fn stale_only_after_the_limit() {
