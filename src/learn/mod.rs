@@ -60,6 +60,6 @@ pub use error::LearnError;
 pub use mlp::{orthogonal, Mlp};
 pub use normalize::{ObsNormalizer, RunningMoments};
 pub use observer::{EpisodeEnd, IterationStats, NoObserver, Observer};
-pub use policy::Policy;
+pub use policy::{Policy, RowsScratch};
 pub use threads::pin_kernel_threads;
 pub use trainer::Trainer;

@@ -88,7 +88,8 @@ pub fn evaluate_policy(exp: &Experiment, v: &VariantSpec, policy: &Policy) -> Ev
 
 /// The study's evaluation episodes under variant `v`, their starts kept across evaluations.
 pub fn eval_episodes(exp: &Experiment, v: &VariantSpec) -> EvalEpisodes {
-    EvalEpisodes::new(v.episode(), exp.study.eval_seed)
+    let lanes = v.clone();
+    EvalEpisodes::new(v.episode(), exp.study.eval_seed).with_lanes(move || lanes.episode())
 }
 
 /// `evaluate_policy` on evaluation episodes whose starts earlier evaluations kept.
@@ -97,9 +98,7 @@ pub fn evaluate_policy_on(
     exp: &Experiment,
     policy: &Policy,
 ) -> EvalSummary {
-    let mut act =
-        |_: &crate::task::Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
-    evals.evaluate(exp.study.eval_episodes as u64, &mut act)
+    evals.evaluate_policy(exp.study.eval_episodes as u64, policy)
 }
 
 /// Redraws the study's evaluation episodes need under variant `v` (rejected draws, episodes left unsolved).

@@ -4,6 +4,7 @@
 use super::episode::{ChosenStart, Episode, Redraws};
 use super::metrics::{EpisodeMetrics, EvalSummary};
 use crate::control::BaselineSpec;
+use crate::learn::{Policy, RowsScratch};
 use crate::plan::PlanSpec;
 use crate::sim::{ArmEnv, Scenario};
 use rand::SeedableRng;
@@ -64,11 +65,17 @@ fn roll_out(ep: &mut Episode, act: &mut Actor<'_>) -> EpisodeMetrics {
 /// A run's evaluation episodes on one `Episode`, each start drawn and planned once and kept for the run's
 /// later evaluations. `begin_eval` depends only on the seed, `j` and the episode's settings, so a kept start
 /// begins the very episode a new choice would; on the quickstart the choosing was about a third of an
-/// evaluation's time.
+/// evaluation's time. With a way to make more episodes (`with_lanes`), a policy is evaluated on all the
+/// episodes in step (`run_policy`), its network taking their observations together as the rollout's does.
 pub struct EvalEpisodes {
     ep: Episode,
     eval_seed: u64,
     kept: Vec<Option<(ChosenStart, ChaCha8Rng)>>,
+    /// Makes an episode like `ep`, one per evaluation episode for `run_policy`.
+    make: Option<Box<dyn Fn() -> Episode>>,
+    /// The episodes `run_policy` steps together (made on first use, kept for the run).
+    lanes: Vec<Episode>,
+    scratch: RowsScratch,
 }
 
 impl EvalEpisodes {
@@ -77,6 +84,89 @@ impl EvalEpisodes {
             ep,
             eval_seed,
             kept: Vec::new(),
+            make: None,
+            lanes: Vec::new(),
+            scratch: RowsScratch::default(),
+        }
+    }
+
+    /// Let `run_policy` step the episodes together, on episodes `make` builds (each like the one given to
+    /// `new`; without this, `run_policy` runs them one after the other on that one).
+    pub fn with_lanes(mut self, make: impl Fn() -> Episode + 'static) -> EvalEpisodes {
+        self.make = Some(Box::new(make));
+        self
+    }
+
+    /// Run evaluation episodes `0..episodes` with a policy's deterministic action and average their metrics.
+    pub fn evaluate_policy(&mut self, episodes: u64, policy: &Policy) -> EvalSummary {
+        EvalSummary::from_episodes(&self.run_policy(episodes, policy))
+    }
+
+    /// Run evaluation episodes `0..episodes` with a policy's deterministic action: their metrics, in order,
+    /// the same as `run` with `Policy::act_deterministic` gives. With `with_lanes` the episodes run in step,
+    /// each on an episode of its own, and the policy acts for all that have not ended at once
+    /// (`Policy::act_deterministic_rows`, the same bits as one at a time).
+    pub fn run_policy(&mut self, episodes: u64, policy: &Policy) -> Vec<EpisodeMetrics> {
+        if self.make.is_none() {
+            let mut act =
+                |_: &Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
+            return self.run(episodes, &mut act);
+        }
+        let count = episodes as usize;
+        self.keep_starts(count);
+        if let Some(make) = &self.make {
+            while self.lanes.len() < count {
+                self.lanes.push(make());
+            }
+        }
+        let lanes = &mut self.lanes[..count];
+        for (lane, kept) in lanes.iter_mut().zip(&self.kept) {
+            let (chosen, rng) = kept.as_ref().expect("kept above");
+            lane.begin_chosen(chosen, &mut rng.clone());
+        }
+        let (od, ad) = (policy.obs_dim(), policy.act_dim());
+        let mut obs = vec![0f32; count * od];
+        let mut act = vec![0f32; count * ad];
+        let mut ended: Vec<Option<EpisodeMetrics>> = (0..count).map(|_| None).collect();
+        let mut active: Vec<usize> = (0..count).collect();
+        while !active.is_empty() {
+            let rows = active.len();
+            for (row, &j) in obs.chunks_exact_mut(od).zip(&active) {
+                lanes[j].observe(row);
+            }
+            policy.act_deterministic_rows(
+                &obs[..rows * od],
+                &mut act[..rows * ad],
+                &mut self.scratch,
+            );
+            let mut still = 0;
+            for r in 0..rows {
+                let j = active[r];
+                let (now, _, terminal) = lanes[j].step(&act[r * ad..(r + 1) * ad]);
+                if terminal || now.timed_out {
+                    ended[j] = Some(lanes[j].metrics());
+                } else {
+                    active[still] = j;
+                    still += 1;
+                }
+            }
+            active.truncate(still);
+        }
+        ended
+            .into_iter()
+            .map(|m| m.expect("every episode ran to its end"))
+            .collect()
+    }
+
+    /// Choose and keep the starts of evaluation episodes `0..count` not kept yet.
+    fn keep_starts(&mut self, count: usize) {
+        if self.kept.len() < count {
+            self.kept.resize(count, None);
+        }
+        for j in 0..count {
+            if self.kept[j].is_none() {
+                self.kept[j] = Some(choose_eval(&mut self.ep, self.eval_seed, j as u64));
+            }
         }
     }
 
@@ -88,14 +178,13 @@ impl EvalEpisodes {
     /// Run evaluation episodes `0..episodes` with `act`: their metrics, in order.
     pub fn run(&mut self, episodes: u64, act: &mut Actor<'_>) -> Vec<EpisodeMetrics> {
         let mut eps = Vec::with_capacity(episodes as usize);
-        for j in 0..episodes {
-            let k = j as usize;
-            if self.kept.len() <= k {
-                self.kept.resize(k + 1, None);
+        for j in 0..episodes as usize {
+            if self.kept.len() <= j {
+                self.kept.resize(j + 1, None);
             }
-            let (chosen, rng) = match &self.kept[k] {
+            let (chosen, rng) = match &self.kept[j] {
                 Some(kept) => kept,
-                None => self.kept[k].insert(choose_eval(&mut self.ep, self.eval_seed, j)),
+                None => self.kept[j].insert(choose_eval(&mut self.ep, self.eval_seed, j as u64)),
             };
             self.ep.begin_chosen(chosen, &mut rng.clone());
             eps.push(roll_out(&mut self.ep, act));

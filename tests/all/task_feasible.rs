@@ -209,3 +209,43 @@ fn the_shared_grid_is_the_built_grid_and_is_built_once() {
     assert_eq!(*one, ConnectivityGrid::build(&sim, margin));
     assert_ne!(*one, *a, "one obstacle fewer must free cells");
 }
+
+// The reference is the one-at-a-time evaluation itself (no outside source): a policy evaluated on all the
+// episodes in step, its network taking their observations together, must give every episode the metrics it
+// gets alone on a fresh episode, bit for bit, also from the kept starts of a second evaluation. The moving-goal
+// study's goal jumps make episodes replan; a policy trained for a few iterations ends episodes at different
+// steps, so the rows acted for together shrink as episodes end.
+#[test]
+fn a_policy_evaluated_on_all_episodes_in_step_gets_the_metrics_of_one_at_a_time() {
+    use std::sync::{Arc, Mutex};
+    use termwise::learn::{NoObserver, Trainer};
+    use termwise::study::run::{build_envs, eval_episodes};
+    use termwise::task::RunShared;
+
+    let exp = experiment::load(Path::new("experiments/moving-goal.toml")).unwrap();
+    let v = &exp.variants[0];
+    let shared = Arc::new(Mutex::new(RunShared::new(v.curriculum.build())));
+    let mut tr = Trainer::new(v.learner.clone(), build_envs(v, 5, &shared), 5).unwrap();
+    for _ in 0..3 {
+        tr.iterate(&mut NoObserver).unwrap();
+    }
+    let policy = tr.policy();
+    let episodes = 30;
+    let mut act = |_: &Episode, obs: &[f32], a: &mut [f32]| policy.act_deterministic(obs, a);
+    let alone: Vec<_> = (0..episodes)
+        .map(|j| run_episode(&mut v.episode(), exp.study.eval_seed, j, &mut act))
+        .collect();
+    assert!(alone.iter().any(|m| m.replans > 0), "no episode replanned");
+    let lengths: std::collections::BTreeSet<usize> = alone.iter().map(|m| m.steps).collect();
+    assert!(lengths.len() > 1, "every episode ran {lengths:?} steps");
+    let alone: Vec<String> = alone.iter().map(|m| format!("{m:?}")).collect();
+    let mut evals = eval_episodes(&exp, v);
+    for pass in 0..2 {
+        let together: Vec<String> = evals
+            .run_policy(episodes, policy)
+            .iter()
+            .map(|m| format!("{m:?}"))
+            .collect();
+        assert_eq!(together, alone, "pass {pass}");
+    }
+}

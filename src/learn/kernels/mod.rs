@@ -269,6 +269,31 @@ impl KernelPath {
         }
     }
 
+    /// One dense layer for [`LANES`] samples side by side (`input[i][l]`: input `i` of sample `l`):
+    /// `out[o][l] = dot(w[o], input[..][l]) + b[o]`, then `tanh_fast` when `tanh`, each exactly as the
+    /// one-sample forward pass computes it (`mlp::dot`: eight accumulators, a fixed tree, the tail in
+    /// order, no fused operations), so every path and every lane give that pass's bits.
+    pub fn dense_lanes(
+        self,
+        w: &[f32],
+        b: &[f32],
+        input: &[[f32; LANES]],
+        out: &mut [[f32; LANES]],
+        tanh: bool,
+    ) {
+        assert_eq!(w.len(), input.len() * b.len(), "dense_lanes: weight shape");
+        assert_eq!(out.len(), b.len(), "dense_lanes: output length");
+        match self.checked() {
+            #[cfg(target_arch = "x86_64")]
+            // SAFETY: `checked` made sure the CPU has AVX2 (the AVX-512 path's CPUs have it too; eight
+            // lanes fill one 256-bit vector).
+            KernelPath::Avx2 | KernelPath::Avx512 => unsafe {
+                x86::dense_lanes_avx2(w, b, input, out, tanh)
+            },
+            _ => dense_lanes_body(w, b, input, out, tanh),
+        }
+    }
+
     /// `x = tanh_fast(x)` element-wise.
     pub fn tanh_in_place(self, x: &mut [f32]) {
         elementwise!(self, mv_tanh, tanh_body(x))
@@ -356,6 +381,50 @@ pub(crate) struct AdamK {
 fn tanh_body(x: &mut [f32]) {
     x.iter_mut()
         .for_each(|v| *v = super::activation::tanh_fast(*v));
+}
+
+/// Samples side by side in [`KernelPath::dense_lanes`].
+pub const LANES: usize = 8;
+
+#[inline(always)]
+fn dense_lanes_body(
+    w: &[f32],
+    b: &[f32],
+    input: &[[f32; LANES]],
+    out: &mut [[f32; LANES]],
+    tanh: bool,
+) {
+    let n_in = input.len();
+    for ((row, &bias), dst) in w.chunks_exact(n_in.max(1)).zip(b).zip(out.iter_mut()) {
+        let mut acc = [[0.0f32; LANES]; 8];
+        let ca = row.chunks_exact(8);
+        let cb = input.chunks_exact(8);
+        let (ra, rb) = (ca.remainder(), cb.remainder());
+        for (x, y) in ca.zip(cb) {
+            for k in 0..8 {
+                for l in 0..LANES {
+                    acc[k][l] += x[k] * y[k][l];
+                }
+            }
+        }
+        let mut s = [0.0f32; LANES];
+        for l in 0..LANES {
+            s[l] = ((acc[0][l] + acc[4][l]) + (acc[1][l] + acc[5][l]))
+                + ((acc[2][l] + acc[6][l]) + (acc[3][l] + acc[7][l]));
+        }
+        for (x, y) in ra.iter().zip(rb) {
+            for l in 0..LANES {
+                s[l] += x * y[l];
+            }
+        }
+        for v in s.iter_mut() {
+            *v += bias;
+            if tanh {
+                *v = super::activation::tanh_fast(*v);
+            }
+        }
+        *dst = s;
+    }
 }
 
 #[inline(always)]
@@ -512,6 +581,48 @@ mod x86 {
 
     use super::{bcast_driver, column_sums_driver, dots_driver, Bcast, Dots, Lanes};
     use std::arch::x86_64::*;
+
+    /// [`super::KernelPath::dense_lanes`] with one 256-bit vector per input (its eight samples): the
+    /// statement of `dense_lanes_body`, operation for operation.
+    #[target_feature(enable = "avx2,fma")]
+    pub(super) unsafe fn dense_lanes_avx2(
+        w: &[f32],
+        b: &[f32],
+        input: &[[f32; super::LANES]],
+        out: &mut [[f32; super::LANES]],
+        tanh: bool,
+    ) {
+        let n_in = input.len();
+        for ((row, &bias), dst) in w.chunks_exact(n_in.max(1)).zip(b).zip(out.iter_mut()) {
+            let mut acc = [_mm256_setzero_ps(); 8];
+            let ca = row.chunks_exact(8);
+            let cb = input.chunks_exact(8);
+            let (ra, rb) = (ca.remainder(), cb.remainder());
+            for (x, y) in ca.zip(cb) {
+                for k in 0..8 {
+                    let p = _mm256_mul_ps(_mm256_set1_ps(x[k]), _mm256_loadu_ps(y[k].as_ptr()));
+                    acc[k] = _mm256_add_ps(acc[k], p);
+                }
+            }
+            let mut s = _mm256_add_ps(
+                _mm256_add_ps(_mm256_add_ps(acc[0], acc[4]), _mm256_add_ps(acc[1], acc[5])),
+                _mm256_add_ps(_mm256_add_ps(acc[2], acc[6]), _mm256_add_ps(acc[3], acc[7])),
+            );
+            for (&x, y) in ra.iter().zip(rb) {
+                s = _mm256_add_ps(
+                    s,
+                    _mm256_mul_ps(_mm256_set1_ps(x), _mm256_loadu_ps(y.as_ptr())),
+                );
+            }
+            s = _mm256_add_ps(s, _mm256_set1_ps(bias));
+            _mm256_storeu_ps(dst.as_mut_ptr(), s);
+            if tanh {
+                for v in dst.iter_mut() {
+                    *v = super::super::activation::tanh_fast(*v);
+                }
+            }
+        }
+    }
 
     /// AVX2 + FMA lanes (8 x f32).
     pub(super) struct Avx2;

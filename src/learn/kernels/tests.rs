@@ -412,3 +412,53 @@ fn kernel_names_parse() {
     let e = KernelPath::parse("sse9").unwrap_err();
     assert!(e.contains(KERNEL_ENV) && e.contains("sse9"), "{e}");
 }
+
+// No outside source: the reference is the one-sample forward pass (`Mlp::forward` of a one-layer network),
+// whose arithmetic each lane must repeat bit for bit, on every path, at widths with and without a tail
+// beyond `dot`'s 8-entry chunks, with and without tanh, and with inputs beyond tanh's clamp.
+#[test]
+fn dense_lanes_gives_each_lane_the_one_sample_forward_pass_on_every_path() {
+    use super::super::activation::tanh_fast;
+    use super::super::mlp::{Dense, Mlp};
+    let mut rng = ChaCha8Rng::seed_from_u64(29);
+    for (n_in, n_out) in [(45, 64), (64, 64), (3, 5), (8, 1), (64, 2), (1, 3)] {
+        let w: Vec<f32> = random(n_in * n_out, &mut rng);
+        let b: Vec<f32> = random(n_out, &mut rng);
+        let mut xt = vec![[0.0f32; LANES]; n_in];
+        for x in xt.iter_mut().flatten() {
+            *x = rng.gen_range(-12.0f32..12.0);
+        }
+        let layer = Mlp {
+            layers: vec![Dense {
+                n_in,
+                n_out,
+                w: w.clone(),
+                b: b.clone(),
+            }],
+        };
+        for tanh in [false, true] {
+            let mut expect = vec![[0.0f32; LANES]; n_out];
+            for l in 0..LANES {
+                let x: Vec<f32> = xt.iter().map(|v| v[l]).collect();
+                let mut y = vec![0.0f32; n_out];
+                layer.forward_alloc(&x, &mut y);
+                for (e, v) in expect.iter_mut().zip(y) {
+                    e[l] = if tanh { tanh_fast(v) } else { v };
+                }
+            }
+            for p in supported() {
+                let mut out = vec![[0.0f32; LANES]; n_out];
+                p.dense_lanes(&w, &b, &xt, &mut out, tanh);
+                for (o, (g, e)) in out.iter().zip(&expect).enumerate() {
+                    for l in 0..LANES {
+                        assert_eq!(
+                            g[l].to_bits(),
+                            e[l].to_bits(),
+                            "{p:?} {n_in}x{n_out} tanh {tanh} output {o} lane {l}"
+                        );
+                    }
+                }
+            }
+        }
+    }
+}
