@@ -1,6 +1,8 @@
 //! The multilayer perceptron in plain f32 Rust: weights of the policy-mean and value networks,
-//! orthogonal initialisation, and the fused forward pass used during rollouts (one sample at a
-//! time, no allocation). The update copies these weights into candle tensors for autograd.
+//! orthogonal initialisation, the one-sample forward pass (no allocation; replay, probes and the
+//! value of a cut-off episode's last state) and the same pass for eight samples side by side
+//! (evaluation episodes in step). The rollout's batched pass and the update's products are in
+//! `fused` and `kernels`; the candle path copies these weights into tensors for autograd.
 
 use rand::Rng;
 
